@@ -1,0 +1,1 @@
+"""The `precess` command line: one module per subcommand, each with register(subparsers)."""

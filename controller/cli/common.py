@@ -1,0 +1,78 @@
+"""Helpers shared by subcommands: loading a rig and a sequence, the clock, the config snapshot."""
+
+from __future__ import annotations
+
+import dataclasses
+import json
+import math
+from typing import Any
+
+from controller.clock import Clock, VirtualClock, WallClock
+from controller.config.loader import LoadedRig, load_rig, load_sequence, with_shots
+from controller.errors import InputError
+from controller.physics.constants import gamma_hz_per_nt
+from controller.rig import Rig, build_rig
+from controller.sequences.compile import compile_sequence
+from controller.sequences.timeline import Timeline
+
+SIMULATED_NOTE = "simulated rig: nothing is energised"
+REAL_RIG_CAUTION = ("CAUTION: this run energises a real coil (up to {current:g} A, {energy:.2g} J stored). "
+                    "Keep clear of the coil and its leads; see safety.md.")
+
+
+def positive_int(text: str) -> int:
+    try:
+        value = int(text)
+    except ValueError:
+        raise InputError(f"{text!r} is not a whole number") from None
+    if value < 1:
+        raise InputError(f"{value} must be at least 1")
+    return value
+
+
+def make_clock(loaded: LoadedRig, realtime: bool = False) -> Clock:
+    if loaded.config.simulator is not None:
+        return VirtualClock(pace=1.0 if realtime else 0.0)
+    return WallClock()
+
+
+def predicted_larmor_hz(loaded: LoadedRig) -> float | None:
+    if loaded.site is None:
+        return None
+    return loaded.site.field_nt * gamma_hz_per_nt("shielded")
+
+
+def load_and_compile(sequence_path: str, loaded: LoadedRig, shots: int | None) -> tuple[Any, Timeline]:
+    spec = load_sequence(sequence_path)
+    if shots is not None:
+        spec = with_shots(spec, shots)
+    try:
+        timeline = compile_sequence(spec, loaded.config.transceiver.sample_rate_hz, predicted_larmor_hz(loaded))
+    except ValueError as exc:
+        raise InputError(f"{sequence_path}: {exc}") from None
+    return spec, timeline
+
+
+def config_snapshot(loaded: LoadedRig, spec: Any, sequence_path: str) -> dict[str, Any]:
+    snap: dict[str, Any] = {"rig_file": loaded.path, "rig": dataclasses.asdict(loaded.config),
+                            "sequence_file": sequence_path, "sequence": dataclasses.asdict(spec)}
+    if loaded.site is not None:
+        snap["site"] = dataclasses.asdict(loaded.site)
+    if loaded.sample is not None:
+        snap["sample"] = dataclasses.asdict(loaded.sample)
+    return snap
+
+
+def open_rig(loaded: LoadedRig, clock: Clock) -> Rig:
+    return build_rig(loaded, clock)
+
+
+def to_json(obj: dict[str, Any]) -> str:
+    def clean(v: Any) -> Any:
+        if isinstance(v, float) and not math.isfinite(v):
+            return None
+        return v
+    return json.dumps({k: clean(v) for k, v in obj.items()}, indent=2, sort_keys=False)
+
+
+__all__ = ["load_rig", "positive_int", "make_clock", "load_and_compile", "config_snapshot", "open_rig", "to_json"]

@@ -1,0 +1,165 @@
+"""Configuration dataclasses: a site, a sample, a rig and sequence specs.
+
+All keys carry their unit in the name.  Objects are frozen: a run keeps a snapshot of the
+exact configuration it ran with.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+from controller.config.strict import field
+
+
+@dataclass(frozen=True, kw_only=True)
+class SiteConfig:
+    """Where the instrument stands and the field it sees."""
+
+    name: str = field(help="site name")
+    latitude_deg: float = field(0.0, min=-90.0, max=90.0)
+    longitude_deg: float = field(0.0, min=-180.0, max=360.0)
+    altitude_m: float = field(0.0, min=-500.0, max=9000.0)
+    iaga_code: str = field("XXX", help="three-letter station code used in IAGA-2002 exports")
+    field_nt: float = field(50000.0, min=15000.0, max=70000.0, help="total field at the sensor")
+    inclination_deg: float = field(65.0, min=-90.0, max=90.0)
+    declination_deg: float = field(0.0, min=-180.0, max=180.0)
+    gradient_nt_per_m: float = field(0.5, min=0.0, max=10000.0, help="field gradient across the sample")
+    diurnal_amplitude_nt: float = field(25.0, min=0.0, max=1000.0)
+    mains_hz: float = field(50.0, choices=(50.0, 60.0))
+
+
+@dataclass(frozen=True, kw_only=True)
+class SampleConfig:
+    """The liquid in the coil."""
+
+    name: str = field(help="sample name")
+    liquid: str = field("water", choices=("water",))
+    volume_l: float = field(0.5, gt=0.0, max=100.0)
+    temperature_c: float = field(20.0, min=0.0, max=40.0)
+    t1_s: float = field(2.5, gt=0.0, max=20.0, help="longitudinal relaxation time")
+    t2_s: float = field(2.0, gt=0.0, max=20.0, help="transverse relaxation time (T2 <= T1)")
+
+
+@dataclass(frozen=True, kw_only=True)
+class CoilConfig:
+    """The solenoid that polarises and receives."""
+
+    turns: int = field(min=1, max=100000)
+    radius_m: float = field(gt=0.0, max=2.0, help="mean winding radius")
+    length_m: float = field(gt=0.0, max=5.0, help="winding length")
+    wire_awg: int = field(min=0, max=40)
+    build_m: float = field(0.0, min=0.0, max=0.5, help="radial depth of the winding (0 = single layer)")
+    axis_to_field_deg: float = field(90.0, min=0.0, max=180.0, help="angle between coil axis and Earth's field")
+    heat_capacity_j_per_k: float = field(0.0, min=0.0, help="thermal capacity; 0 = copper mass only")
+    thermal_resistance_k_per_w: float = field(5.0, gt=0.0, help="winding to ambient")
+    ambient_c: float = field(20.0, min=-40.0, max=60.0)
+    clamp_voltage_v: float = field(200.0, gt=0.0, max=2000.0, help="flyback clamp at switch-off")
+
+
+@dataclass(frozen=True, kw_only=True)
+class LimitsConfig:
+    """Hard limits checked before every run and supervised during it."""
+
+    max_current_a: float = field(3.0, gt=0.0, max=100.0)
+    max_polarise_s: float = field(10.0, gt=0.0, max=600.0)
+    max_duty_cycle: float = field(0.8, gt=0.0, max=1.0, help="fraction of time the coil carries current")
+    max_flyback_energy_j: float = field(5.0, gt=0.0, max=1000.0, help="1/2 L I^2 at switch-off")
+    max_coil_temperature_c: float = field(80.0, min=20.0, max=180.0, help="IEC 60085 class minus margin")
+    max_pulse_amplitude_v: float = field(1.0, gt=0.0, max=100.0)
+    max_acquire_s: float = field(10.0, gt=0.0, max=600.0)
+
+
+@dataclass(frozen=True, kw_only=True)
+class ReceiveConfig:
+    """The receive chain from coil to ADC."""
+
+    preamp_noise_nv_per_rthz: float = field(2.0, min=0.0, max=1000.0)
+    gain: float = field(10000.0, gt=0.0, max=1e7, help="voltage gain coil -> ADC")
+    highpass_hz: float = field(300.0, min=0.0, max=5000.0, help="AC coupling / high-pass corner")
+    adc_full_scale_v: float = field(1.0, gt=0.0, max=20.0)
+    adc_bits: int = field(24, choices=(16, 24, 32))
+
+
+@dataclass(frozen=True, kw_only=True)
+class DriverConfig:
+    """Which driver serves one role, and its settings (driver-specific keys live in `options`)."""
+
+    driver: str = field("simulated", choices=("simulated",))
+    sample_rate_hz: float = field(48000.0, choices=(44100.0, 48000.0, 96000.0, 192000.0))
+
+
+@dataclass(frozen=True, kw_only=True)
+class SimulatorConfig:
+    """Truth and imperfections of the simulated instrument."""
+
+    seed: int = field(1, min=0)
+    site: str = field(help="site file, relative to the rig file")
+    sample: str = field(help="sample file, relative to the rig file")
+    mains_amplitude_uv: float = field(2.0, min=0.0, help="fundamental at the coil, referred to input")
+    mains_harmonics: int = field(60, min=0, max=200)
+    mains_drift_hz: float = field(0.02, min=0.0, max=1.0, help="peak slow wander of the mains frequency")
+    spike_rate_per_s: float = field(0.5, min=0.0, max=1000.0)
+    spike_amplitude_uv: float = field(20.0, min=0.0)
+    ringing_amplitude_v: float = field(0.5, min=0.0, help="switch-off ringing at the ADC")
+    ringing_decay_s: float = field(0.002, gt=0.0, max=1.0)
+    ringing_frequency_hz: float = field(3500.0, gt=0.0)
+    reference_coupling: float = field(1.0, min=0.0, max=10.0, help="hum seen by the reference coil / signal coil")
+    isochromats: int = field(256, min=16, max=4096)
+
+
+@dataclass(frozen=True, kw_only=True)
+class RigConfig:
+    """A whole instrument: coil, limits, receive chain, drivers and (for the simulator) its truth."""
+
+    name: str = field(help="rig name")
+    coil: CoilConfig = field()
+    limits: LimitsConfig = field(default_factory=LimitsConfig)
+    receive: ReceiveConfig = field(default_factory=ReceiveConfig)
+    transceiver: DriverConfig = field(default_factory=DriverConfig)
+    supply: DriverConfig = field(default_factory=DriverConfig)
+    simulator: SimulatorConfig | None = field(None)
+    description: str = field("")
+
+
+@dataclass(frozen=True, kw_only=True)
+class PolariseSpec:
+    current_a: float = field(gt=0.0, max=100.0)
+    duration_s: float = field(gt=0.0, max=600.0)
+
+
+@dataclass(frozen=True, kw_only=True)
+class SwitchOffSpec:
+    ramp_s: float = field(0.0002, gt=0.0, max=10.0, help="time for the current to fall to zero")
+    shape: str = field("linear", choices=("linear", "exponential"))
+
+
+@dataclass(frozen=True, kw_only=True)
+class PulseSpec:
+    """An excitation pulse at the Larmor frequency after switch-off."""
+
+    duration_s: float = field(gt=0.0, max=1.0)
+    amplitude_v: float = field(gt=0.0, max=100.0, help="transmit amplitude at the output")
+    frequency_hz: float | None = field(None, gt=0.0, max=10000.0, help="omit to use the site's predicted field")
+    phase_deg: float = field(0.0, min=-360.0, max=360.0)
+    delay_s: float = field(0.01, min=0.0, max=600.0, help="after the end of the switch-off ramp")
+
+
+@dataclass(frozen=True, kw_only=True)
+class ReceiveSpec:
+    dead_time_s: float = field(0.01, min=0.0, max=1.0, help="after switch-off or pulse end, before acquisition")
+    acquire_s: float = field(1.0, gt=0.0, max=600.0)
+
+
+@dataclass(frozen=True, kw_only=True)
+class FidSequence:
+    """Prepolarise, switch off, optionally excite, record the FID; repeat for `shots`."""
+
+    name: str = field(help="sequence name")
+    kind: str = field("fid", choices=("fid",))
+    shots: int = field(1, min=1, max=100000)
+    recovery_s: float = field(1.0, min=0.0, max=3600.0, help="wait after each shot, coil off")
+    polarise: PolariseSpec = field()
+    switch_off: SwitchOffSpec = field(default_factory=SwitchOffSpec)
+    pulse: PulseSpec | None = field(None)
+    receive: ReceiveSpec = field(default_factory=ReceiveSpec)
+    description: str = field("")

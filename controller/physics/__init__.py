@@ -1,0 +1,1 @@
+"""Physical models shared by planning, the simulator and the interlocks (one source of truth)."""

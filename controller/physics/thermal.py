@@ -1,0 +1,65 @@
+"""First-order (lumped) thermal model of a copper coil driven by I^2 R(T).
+
+    C dT/dt = I^2 R20 (1 + alpha (T - 20 C)) - (T - T_amb) / R_th
+
+For a constant current this is linear in T, dT/dt = a - b T with
+
+    a = (I^2 R20 (1 - 20 alpha) + T_amb / R_th) / C,   b = (1/R_th - I^2 R20 alpha) / C,
+
+whose exact solution is T(t) = T_inf + (T0 - T_inf) exp(-b t), T_inf = a / b.  When b <= 0
+the coil runs away (heating grows faster than cooling); the model then integrates the
+linear growth T(t) = T0 + (a - b T0) t exactly for b = 0 and exp growth for b < 0.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+from controller.physics.coil import COPPER_ALPHA_PER_K, REFERENCE_TEMPERATURE_C
+
+
+@dataclass(frozen=True)
+class ThermalModel:
+    resistance_20c_ohm: float
+    heat_capacity_j_per_k: float
+    thermal_resistance_k_per_w: float
+    ambient_c: float
+
+    def _coefficients(self, current_a: float) -> tuple[float, float]:
+        c = self.heat_capacity_j_per_k
+        p20 = current_a**2 * self.resistance_20c_ohm
+        a = (p20 * (1.0 - REFERENCE_TEMPERATURE_C * COPPER_ALPHA_PER_K) + self.ambient_c / self.thermal_resistance_k_per_w) / c
+        b = (1.0 / self.thermal_resistance_k_per_w - p20 * COPPER_ALPHA_PER_K) / c
+        return a, b
+
+    def step(self, temperature_c: float, current_a: float, duration_s: float) -> float:
+        """Temperature after holding current_a for duration_s from temperature_c (exact)."""
+        if duration_s <= 0.0:
+            return temperature_c
+        a, b = self._coefficients(current_a)
+        if abs(b) < 1e-15:
+            return temperature_c + a * duration_s
+        t_inf = a / b
+        return t_inf + (temperature_c - t_inf) * math.exp(-b * duration_s)
+
+    def steady_state_c(self, current_a: float) -> float:
+        """T_inf = a / b, or +inf when the coil would run away."""
+        a, b = self._coefficients(current_a)
+        return a / b if b > 0 else math.inf
+
+    def power_w(self, current_a: float, temperature_c: float) -> float:
+        """Dissipation I^2 R(T)."""
+        return current_a**2 * self.resistance_20c_ohm * (
+            1.0 + COPPER_ALPHA_PER_K * (temperature_c - REFERENCE_TEMPERATURE_C))
+
+
+def thermal_model_for(coil_config: object, coil_model: object) -> ThermalModel:
+    """Build the model from a CoilConfig and its CoilModel (heat capacity 0 means copper alone)."""
+    heat_capacity = coil_config.heat_capacity_j_per_k or coil_model.heat_capacity_j_per_k
+    return ThermalModel(
+        resistance_20c_ohm=coil_model.resistance_20c_ohm,
+        heat_capacity_j_per_k=heat_capacity,
+        thermal_resistance_k_per_w=coil_config.thermal_resistance_k_per_w,
+        ambient_c=coil_config.ambient_c,
+    )

@@ -1,0 +1,1 @@
+"""Sequences are data: a spec compiles, purely, into a Timeline of frozen events."""

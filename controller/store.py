@@ -1,0 +1,192 @@
+"""The store: SQLite in WAL mode, one transaction per shot.
+
+A crash or power cut loses at most the shot in flight: each ShotAcquired is written and
+committed in its own transaction with synchronous=FULL.  Raw samples of every channel are
+kept as little-endian float32 with a SHA-256 checksum, so analysis can always be recomputed.
+"""
+
+from __future__ import annotations
+
+import hashlib
+import json
+import sqlite3
+from dataclasses import dataclass
+from pathlib import Path
+from typing import Any, Iterator
+
+import numpy as np
+
+from controller.errors import StoreError
+from controller.records import InterlockTripped, Record, RunFinished, RunStarted, ShotAcquired, StatusSample
+
+SCHEMA_VERSION = 1
+SCHEMA = """
+CREATE TABLE IF NOT EXISTS meta (key TEXT PRIMARY KEY, value TEXT NOT NULL);
+CREATE TABLE IF NOT EXISTS runs (
+    run_id TEXT PRIMARY KEY, started_at_s REAL NOT NULL, finished_at_s REAL,
+    sequence_name TEXT NOT NULL, sequence_kind TEXT NOT NULL, shots_planned INTEGER NOT NULL,
+    sample_rate_hz REAL NOT NULL, simulated INTEGER NOT NULL, software_version TEXT NOT NULL,
+    config_json TEXT NOT NULL, exit_status TEXT, reason TEXT, shots_completed INTEGER);
+CREATE TABLE IF NOT EXISTS shots (
+    run_id TEXT NOT NULL REFERENCES runs(run_id), shot_index INTEGER NOT NULL,
+    started_at_s REAL NOT NULL, sample_rate_hz REAL NOT NULL, channel_names TEXT NOT NULL,
+    n_channels INTEGER NOT NULL, n_samples INTEGER NOT NULL, samples BLOB, sha256 TEXT NOT NULL,
+    switch_off_sample INTEGER NOT NULL, acquire_start_sample INTEGER NOT NULL, acquire_samples INTEGER NOT NULL,
+    dead_time_s REAL NOT NULL, latency_samples INTEGER NOT NULL, bad INTEGER NOT NULL, notes TEXT NOT NULL,
+    PRIMARY KEY (run_id, shot_index));
+CREATE TABLE IF NOT EXISTS status (run_id TEXT NOT NULL, at_s REAL NOT NULL, readings_json TEXT NOT NULL);
+CREATE INDEX IF NOT EXISTS status_run ON status(run_id, at_s);
+CREATE TABLE IF NOT EXISTS trips (run_id TEXT NOT NULL, at_s REAL NOT NULL, check_name TEXT NOT NULL,
+    reason TEXT NOT NULL, values_json TEXT NOT NULL);
+CREATE TABLE IF NOT EXISTS results (run_id TEXT NOT NULL, created_at_s REAL NOT NULL, kind TEXT NOT NULL,
+    result_json TEXT NOT NULL);
+CREATE INDEX IF NOT EXISTS results_run ON results(run_id);
+"""
+STATUS_FLUSH_COUNT = 50
+
+
+@dataclass(frozen=True)
+class StoredShot:
+    run_id: str
+    shot_index: int
+    started_at_s: float
+    sample_rate_hz: float
+    channel_names: tuple[str, ...]
+    samples: np.ndarray
+    switch_off_sample: int
+    acquire_start_sample: int
+    acquire_samples: int
+    dead_time_s: float
+    bad: bool
+
+
+class Store:
+    """One SQLite database file; use as a context manager or call close()."""
+
+    def __init__(self, path: str | Path) -> None:
+        self.path = Path(path)
+        try:
+            self.path.parent.mkdir(parents=True, exist_ok=True)
+            self.db = sqlite3.connect(str(self.path), isolation_level=None, check_same_thread=False)
+            self.db.execute("PRAGMA journal_mode=WAL")
+            self.db.execute("PRAGMA synchronous=FULL")
+            self.db.execute("PRAGMA foreign_keys=ON")
+            self.db.executescript(SCHEMA)
+            self.db.execute("INSERT OR IGNORE INTO meta VALUES ('schema_version', ?)", (str(SCHEMA_VERSION),))
+        except (sqlite3.Error, OSError) as exc:
+            raise StoreError(f"{self.path}: cannot open the store ({exc})") from None
+        self._pending_status: list[tuple[str, float, str]] = []
+
+    def close(self) -> None:
+        try:
+            self.flush_status()
+        finally:
+            self.db.close()
+
+    def __enter__(self) -> "Store":
+        return self
+
+    def __exit__(self, *exc: object) -> None:
+        self.close()
+
+    # ---- writing ------------------------------------------------------------------------
+    def write(self, record: Record) -> None:
+        """Sink for engine records.  Raises on failure so the engine stops the run."""
+        if isinstance(record, RunStarted):
+            self._tx("INSERT INTO runs (run_id, started_at_s, sequence_name, sequence_kind, shots_planned, "
+                     "sample_rate_hz, simulated, software_version, config_json) VALUES (?,?,?,?,?,?,?,?,?)",
+                     (record.run_id, record.started_at_s, record.sequence_name, record.sequence_kind,
+                      record.shots_planned, record.sample_rate_hz, int(record.simulated), record.software_version,
+                      json.dumps(record.config, sort_keys=True, default=str)))
+        elif isinstance(record, ShotAcquired):
+            self.flush_status()
+            blob = np.ascontiguousarray(record.samples, dtype="<f4").tobytes()
+            self._tx("INSERT INTO shots VALUES (?,?,?,?,?,?,?,?,?,?,?,?,?,?,?,?)",
+                     (record.run_id, record.shot_index, record.started_at_s, record.sample_rate_hz,
+                      json.dumps(list(record.channel_names)), record.samples.shape[0], record.samples.shape[1],
+                      blob, hashlib.sha256(blob).hexdigest(), record.switch_off_sample, record.acquire_start_sample,
+                      record.acquire_samples, record.dead_time_s, record.latency_samples, int(record.bad),
+                      json.dumps(list(record.notes))))
+        elif isinstance(record, StatusSample):
+            self._pending_status.append((record.run_id, record.at_s, json.dumps(record.readings)))
+            if len(self._pending_status) >= STATUS_FLUSH_COUNT:
+                self.flush_status()
+        elif isinstance(record, InterlockTripped):
+            self.flush_status()
+            self._tx("INSERT INTO trips VALUES (?,?,?,?,?)",
+                     (record.run_id, record.at_s, record.check, record.reason, json.dumps(record.values)))
+        elif isinstance(record, RunFinished):
+            self.flush_status()
+            self._tx("UPDATE runs SET finished_at_s=?, exit_status=?, reason=?, shots_completed=? WHERE run_id=?",
+                     (record.finished_at_s, record.exit_status, record.reason, record.shots_completed, record.run_id))
+
+    def flush_status(self) -> None:
+        if not self._pending_status:
+            return
+        rows, self._pending_status = self._pending_status, []
+        try:
+            with self._transaction():
+                self.db.executemany("INSERT INTO status VALUES (?,?,?)", rows)
+        except sqlite3.Error as exc:
+            raise StoreError(f"{self.path}: write failed ({exc})") from None
+
+    def add_result(self, run_id: str, kind: str, result: dict[str, Any], created_at_s: float) -> None:
+        self._tx("INSERT INTO results VALUES (?,?,?,?)", (run_id, created_at_s, kind, json.dumps(result)))
+
+    def _tx(self, sql: str, params: tuple) -> None:
+        try:
+            with self._transaction():
+                self.db.execute(sql, params)
+        except sqlite3.Error as exc:
+            raise StoreError(f"{self.path}: write failed ({exc})") from None
+
+    def _transaction(self) -> Any:
+        db = self.db
+
+        class _Tx:
+            def __enter__(self) -> None:
+                db.execute("BEGIN IMMEDIATE")
+
+            def __exit__(self, exc_type: object, *rest: object) -> None:
+                db.execute("ROLLBACK" if exc_type else "COMMIT")
+
+        return _Tx()
+
+    # ---- reading ------------------------------------------------------------------------
+    def runs(self) -> list[dict[str, Any]]:
+        cur = self.db.execute("SELECT run_id, started_at_s, finished_at_s, sequence_name, sequence_kind, shots_planned, "
+                              "shots_completed, exit_status, reason, simulated, "
+                              "(SELECT COUNT(*) FROM shots s WHERE s.run_id = r.run_id) FROM runs r ORDER BY started_at_s")
+        keys = ("run_id", "started_at_s", "finished_at_s", "sequence_name", "sequence_kind", "shots_planned",
+                "shots_completed", "exit_status", "reason", "simulated", "shots_stored")
+        return [dict(zip(keys, row)) for row in cur.fetchall()]
+
+    def run(self, run_id: str) -> dict[str, Any]:
+        row = self.db.execute("SELECT run_id, config_json, sample_rate_hz, sequence_name, exit_status FROM runs "
+                              "WHERE run_id = ?", (run_id,)).fetchone()
+        if row is None:
+            known = ", ".join(r["run_id"] for r in self.runs()[-5:]) or "none"
+            raise StoreError(f"{self.path}: no run {run_id!r} (latest: {known})")
+        return {"run_id": row[0], "config": json.loads(row[1]), "sample_rate_hz": row[2], "sequence_name": row[3],
+                "exit_status": row[4]}
+
+    def shots(self, run_id: str) -> Iterator[StoredShot]:
+        cur = self.db.execute("SELECT shot_index, started_at_s, sample_rate_hz, channel_names, n_channels, n_samples, "
+                              "samples, sha256, switch_off_sample, acquire_start_sample, acquire_samples, dead_time_s, "
+                              "bad FROM shots WHERE run_id = ? ORDER BY shot_index", (run_id,))
+        for row in cur:
+            (index, started, fs, names, n_ch, n_s, blob, digest, off, acq, acq_n, dead, bad) = row
+            if blob is None:
+                continue
+            if hashlib.sha256(blob).hexdigest() != digest:
+                raise StoreError(f"{self.path}: run {run_id} shot {index}: sample checksum mismatch")
+            samples = np.frombuffer(blob, dtype="<f4").reshape(n_ch, n_s)
+            yield StoredShot(run_id, index, started, fs, tuple(json.loads(names)), samples, off, acq, acq_n, dead,
+                             bool(bad))
+
+    def results(self, run_id: str) -> list[dict[str, Any]]:
+        cur = self.db.execute("SELECT kind, result_json FROM results WHERE run_id = ? ORDER BY created_at_s", (run_id,))
+        return [{"kind": k, **json.loads(j)} for k, j in cur.fetchall()]
+
+    def integrity_ok(self) -> bool:
+        return self.db.execute("PRAGMA integrity_check").fetchone()[0] == "ok"

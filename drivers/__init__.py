@@ -1,0 +1,1 @@
+"""Hardware drivers behind small Protocols, and the simulated instrument."""

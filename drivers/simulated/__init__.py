@@ -1,0 +1,1 @@
+"""The simulated instrument: physics, seeded, sharing one virtual clock with the engine."""

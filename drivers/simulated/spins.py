@@ -1,0 +1,144 @@
+"""Spin dynamics for the simulator: Bloch rotation through the switch-off, and isochromats.
+
+Conventions: lab frame, Earth's field along +z, coil axis n = (sin a, 0, cos a).
+Precession obeys dM/dt = gamma M x B, i.e. a rotation about B by the angle -gamma |B| dt
+(Rodrigues' formula, exact for a field constant over the step).  The transverse
+magnetisation m = Mx + i My then evolves as m(t) = m(0) exp(-i omega0 t).
+
+The rotating frame turns with the spins at omega0; an isochromat k of offset d_omega_k sees
+the effective field (b1x, b1y, d_omega_k / gamma), where b1 = b1x + i b1y is the slowly
+varying part of Bx(t) exp(+i omega0 t) (the co-rotating half of a linear B1).
+"""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+
+MAX_DIRECTION_STEP_RAD = 2e-3
+
+
+def rotate(vectors: np.ndarray, axes: np.ndarray, angles: np.ndarray) -> np.ndarray:
+    """Rotate vectors (..., 3) about unit axes (..., 3) by angles (...) (Rodrigues, right-handed)."""
+    c = np.cos(angles)[..., None]
+    s = np.sin(angles)[..., None]
+    dot = np.sum(axes * vectors, axis=-1, keepdims=True)
+    return vectors * c + np.cross(axes, vectors) * s + axes * dot * (1.0 - c)
+
+
+def rotation_matrices(axes: np.ndarray, angles: np.ndarray) -> np.ndarray:
+    """Rotation matrices (N, 3, 3) about unit axes (N, 3) by angles (N,) (Rodrigues, right-handed)."""
+    x, y, z = axes[:, 0], axes[:, 1], axes[:, 2]
+    c, s = np.cos(angles), np.sin(angles)
+    C = 1.0 - c
+    return np.stack([
+        np.stack([c + x * x * C, x * y * C - z * s, x * z * C + y * s], axis=1),
+        np.stack([y * x * C + z * s, c + y * y * C, y * z * C - x * s], axis=1),
+        np.stack([z * x * C - y * s, z * y * C + x * s, c + z * z * C], axis=1),
+    ], axis=1)
+
+
+def compose(matrices: np.ndarray) -> np.ndarray:
+    """Product R_N ... R_2 R_1 of rotations applied in order R_1 first, by pairwise reduction."""
+    r = matrices
+    while r.shape[0] > 1:
+        if r.shape[0] % 2:
+            r = np.concatenate([r, np.eye(3)[None]], axis=0)
+        r = np.matmul(r[1::2], r[0::2])
+    return r[0]
+
+
+def _rotation_y(theta: float) -> np.ndarray:
+    c, s = math.cos(theta), math.sin(theta)
+    return np.array([[c, 0.0, s], [0.0, 1.0, 0.0], [-s, 0.0, c]])
+
+
+def integrate_switch_off(
+    magnetisation: np.ndarray,
+    gate: np.ndarray,
+    sample_rate_hz: float,
+    polarising_field_t: float,
+    earth_field_t: float,
+    axis_to_field_rad: float,
+    gamma_rad_per_s_t: float,
+) -> np.ndarray:
+    """Carry M (lab frame) through the current ramp given as gate samples (fraction of full current).
+
+    The field B(t) = Be z + Bp g(t) n stays in the x-z plane at angle theta(t) from z, with
+    g linear between samples.  The integration runs in the frame F that turns with the
+    field about y (angular velocity theta' y), where the Bloch equation
+    dM/dt = gamma M x B becomes dM_F/dt = gamma M_F x B_eff with B_eff = |B| z + (theta'/gamma) y
+    (Abragam 1961, ch. II, rotating frames).  Steps are cut so theta turns at most 2 mrad each;
+    each step is an exact rotation about the mid-step B_eff.  Sudden ramps (theta' >> gamma|B|,
+    i.e. dBp/dt >> gamma Be^2) leave M fixed in the lab; slow ones let it follow B to z.
+    """
+    n_axis = np.array([math.sin(axis_to_field_rad), 0.0, math.cos(axis_to_field_rad)])
+    g = np.asarray(gate, dtype=float)
+    dt = 1.0 / sample_rate_hz
+
+    def theta_and_mag(gv: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        bx = polarising_field_t * gv * n_axis[0]
+        bz = earth_field_t + polarising_field_t * gv * n_axis[2]
+        return np.arctan2(bx, bz), np.hypot(bx, bz)
+
+    theta_edges, _ = theta_and_mag(g)
+    steps = np.maximum(1, np.ceil(np.abs(np.diff(theta_edges)) / MAX_DIRECTION_STEP_RAD).astype(int))
+    interval = np.repeat(np.arange(g.size - 1), steps)
+    within = np.concatenate([(np.arange(k) + 0.5) / k for k in steps]) if steps.size else np.zeros(0)
+    sub_dt = dt / steps[interval]
+    g_lo, g_hi = g[interval], g[interval + 1]
+    theta_mid, mag_mid = theta_and_mag(g_lo + (g_hi - g_lo) * within)
+    theta_lo, _ = theta_and_mag(g_lo + (g_hi - g_lo) * (within - 0.5 / steps[interval]))
+    theta_hi, _ = theta_and_mag(g_lo + (g_hi - g_lo) * (within + 0.5 / steps[interval]))
+    theta_rate = (theta_hi - theta_lo) / sub_dt
+    b_eff = np.stack([np.zeros_like(mag_mid), theta_rate / gamma_rad_per_s_t, mag_mid], axis=1)
+    b_mag = np.linalg.norm(b_eff, axis=1)
+    axes = b_eff / b_mag[:, None]
+    total = compose(rotation_matrices(axes, -gamma_rad_per_s_t * b_mag * sub_dt)) if axes.size else np.eye(3)
+    m_frame = _rotation_y(theta_edges[0]).T @ np.asarray(magnetisation, dtype=float)
+    return _rotation_y(theta_edges[-1]) @ (total @ m_frame)
+
+
+def lorentzian_offsets_rad_per_s(count: int, half_width_rad_per_s: float) -> np.ndarray:
+    """Deterministic isochromat offsets at the mid-quantiles of a Lorentzian of half width gamma.
+
+    d_omega_k = gamma tan(pi ((k + 1/2)/K - 1/2)); equal weights.  Their sum decays as
+    exp(-gamma t), the inhomogeneous part of T2* (1/T2* = 1/T2 + 1/T2').
+    """
+    q = (np.arange(count) + 0.5) / count
+    return half_width_rad_per_s * np.tan(np.pi * (q - 0.5))
+
+
+def pulse_rotation(
+    vectors: np.ndarray, b1_complex_t: complex, offsets_rad_per_s: np.ndarray, gamma_rad_per_s_t: float,
+    duration_s: float,
+) -> np.ndarray:
+    """Rotate isochromat vectors (K, 3) in the rotating frame under B_eff = (b1x, b1y, d_omega/gamma)."""
+    wx = gamma_rad_per_s_t * b1_complex_t.real
+    wy = gamma_rad_per_s_t * b1_complex_t.imag
+    w = np.stack([np.full_like(offsets_rad_per_s, wx), np.full_like(offsets_rad_per_s, wy), offsets_rad_per_s], axis=1)
+    mag = np.linalg.norm(w, axis=1)
+    safe = np.where(mag > 0, mag, 1.0)
+    return rotate(vectors, w / safe[:, None], -mag * duration_s)
+
+
+def free_evolution(
+    vectors: np.ndarray, offsets_rad_per_s: np.ndarray, duration_s: float, t1_s: float, t2_s: float,
+    equilibrium_z: float,
+) -> np.ndarray:
+    """Free precession in the rotating frame with T2 decay and T1 recovery towards equilibrium_z."""
+    m = vectors[:, 0] + 1j * vectors[:, 1]
+    m = m * np.exp(-1j * offsets_rad_per_s * duration_s) * math.exp(-duration_s / t2_s)
+    e1 = math.exp(-duration_s / t1_s)
+    mz = vectors[:, 2] * e1 + equilibrium_z * (1.0 - e1)
+    return np.stack([m.real, m.imag, mz], axis=1)
+
+
+def transverse_envelope(
+    vectors: np.ndarray, offsets_rad_per_s: np.ndarray, times_s: np.ndarray, t2_s: float
+) -> np.ndarray:
+    """Mean rotating-frame transverse magnetisation sum_k m_k exp(-i dw_k t) exp(-t/T2) / K at times_s."""
+    m = vectors[:, 0] + 1j * vectors[:, 1]
+    phase = np.exp(-1j * np.outer(times_s, offsets_rad_per_s))
+    return (phase @ m) / m.size * np.exp(-times_s / t2_s)
