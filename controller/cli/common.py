@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import argparse
 import dataclasses
 import json
 import math
@@ -21,12 +22,13 @@ REAL_RIG_CAUTION = ("CAUTION: this run energises a real coil (up to {current:g} 
 
 
 def positive_int(text: str) -> int:
+    """argparse type: a whole number >= 1."""
     try:
         value = int(text)
     except ValueError:
-        raise InputError(f"{text!r} is not a whole number") from None
+        raise argparse.ArgumentTypeError(f"{text!r} is not a whole number") from None
     if value < 1:
-        raise InputError(f"{value} must be at least 1")
+        raise argparse.ArgumentTypeError(f"{value} is not allowed; must be at least 1")
     return value
 
 

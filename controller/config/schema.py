@@ -104,7 +104,6 @@ class SimulatorConfig:
     ringing_decay_s: float = field(0.002, gt=0.0, max=1.0)
     ringing_frequency_hz: float = field(3500.0, gt=0.0)
     reference_coupling: float = field(1.0, min=0.0, max=10.0, help="hum seen by the reference coil / signal coil")
-    isochromats: int = field(256, min=16, max=4096)
 
 
 @dataclass(frozen=True, kw_only=True)

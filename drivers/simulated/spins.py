@@ -100,14 +100,25 @@ def integrate_switch_off(
     return _rotation_y(theta_edges[-1]) @ (total @ m_frame)
 
 
-def lorentzian_offsets_rad_per_s(count: int, half_width_rad_per_s: float) -> np.ndarray:
-    """Deterministic isochromat offsets at the mid-quantiles of a Lorentzian of half width gamma.
+def lorentzian_isochromats(half_width_rad_per_s: float, span_s: float, width_factor: float = 50.0,
+                           max_count: int = 4001) -> tuple[np.ndarray, np.ndarray]:
+    """Isochromat offsets on a uniform grid with Lorentzian weights (trapezoid rule).
 
-    d_omega_k = gamma tan(pi ((k + 1/2)/K - 1/2)); equal weights.  Their sum decays as
-    exp(-gamma t), the inhomogeneous part of T2* (1/T2* = 1/T2 + 1/T2').
+    Offsets d_k = k delta for |d_k| <= W = width_factor * gamma, weights
+    w_k = delta * (gamma / pi) / (gamma^2 + d_k^2).  By Poisson summation the weighted sum
+    sum_k w_k exp(-i d_k t) equals exp(-gamma |t|) up to aliases exp(-gamma |t - 2 pi n / delta|),
+    so delta = 2 pi / (span_s + 10 / gamma) keeps them below e^-10 for |t| <= span_s.  The tails
+    beyond W (mass 2/(pi width_factor)) dephase within ~1/W and are left out, not renormalised.
+    A zero width gives one isochromat of weight 1.
     """
-    q = (np.arange(count) + 0.5) / count
-    return half_width_rad_per_s * np.tan(np.pi * (q - 0.5))
+    if half_width_rad_per_s <= 0.0:
+        return np.zeros(1), np.ones(1)
+    g = half_width_rad_per_s
+    delta = 2.0 * np.pi / (span_s + 10.0 / g)
+    half = min((max_count - 1) // 2, int(np.ceil(width_factor * g / delta)))
+    offsets = np.arange(-half, half + 1) * delta
+    weights = delta * (g / np.pi) / (g**2 + offsets**2)
+    return offsets, weights
 
 
 def pulse_rotation(
@@ -136,9 +147,9 @@ def free_evolution(
 
 
 def transverse_envelope(
-    vectors: np.ndarray, offsets_rad_per_s: np.ndarray, times_s: np.ndarray, t2_s: float
+    vectors: np.ndarray, offsets_rad_per_s: np.ndarray, weights: np.ndarray, times_s: np.ndarray, t2_s: float
 ) -> np.ndarray:
-    """Mean rotating-frame transverse magnetisation sum_k m_k exp(-i dw_k t) exp(-t/T2) / K at times_s."""
-    m = vectors[:, 0] + 1j * vectors[:, 1]
+    """Weighted rotating-frame transverse magnetisation sum_k w_k m_k exp(-i dw_k t) exp(-t/T2) at times_s."""
+    m = (vectors[:, 0] + 1j * vectors[:, 1]) * weights
     phase = np.exp(-1j * np.outer(times_s, offsets_rad_per_s))
-    return (phase @ m) / m.size * np.exp(-times_s / t2_s)
+    return (phase @ m) * np.exp(-times_s / t2_s)

@@ -108,8 +108,8 @@ class SimulatedTransceiver:
         emf = np.zeros(n)
         if k_start >= n:
             return emf, float(m_vec[2])
-        offsets = spins.lorentzian_offsets_rad_per_s(inst.sim.isochromats, inst.inhomogeneous_rate_per_s)
         t_start = k_start / fs
+        offsets, weights = spins.lorentzian_isochromats(inst.inhomogeneous_rate_per_s, (n - k_start) / fs)
         m_rot = complex(m_vec[0], m_vec[1]) * np.exp(1j * omega0 * t_start)
         iso = np.tile([m_rot.real, m_rot.imag, m_vec[2]], (offsets.size, 1))
         m0_earth = curie_magnetisation_a_per_m(inst.earth_field_nt() * 1e-9, inst.sample.temperature_c,
@@ -136,21 +136,22 @@ class SimulatedTransceiver:
             stop = k
             nxt = np.flatnonzero(tx_on[k:])
             stop = k + int(nxt[0]) if nxt.size else n
-            envelope[k:stop] = self._free_envelope(iso, offsets, stop - k, t2)
+            envelope[k:stop] = self._free_envelope(iso, offsets, weights, stop - k, t2)
             iso = spins.free_evolution(iso, offsets, (stop - k) / fs, t1, t2, m0_earth)
             k = stop
         t_abs = np.arange(n) / fs
         scale = omega0 * inst.coil.field_per_amp_t * inst.sample_volume_m3 * math.sin(axis)
         emf = scale * np.real(1j * envelope * np.exp(-1j * omega0 * t_abs))
-        return emf, float(np.mean(iso[:, 2]))
+        return emf, float(np.sum(iso[:, 2] * weights) / np.sum(weights))
 
-    def _free_envelope(self, iso: np.ndarray, offsets: np.ndarray, count: int, t2_s: float) -> np.ndarray:
+    def _free_envelope(self, iso: np.ndarray, offsets: np.ndarray, weights: np.ndarray, count: int,
+                       t2_s: float) -> np.ndarray:
         """Transverse envelope over count samples, computed on a decimated grid and spline-interpolated."""
         fs = self.sample_rate_hz
         max_offset_hz = float(np.max(np.abs(offsets))) / (2 * np.pi) if offsets.size else 0.0
         step = int(max(1, min(64, fs / (16.0 * max(max_offset_hz, 1.0)))))
         coarse = np.arange(0, count + step, step)
-        env = spins.transverse_envelope(iso, offsets, coarse / fs, t2_s)
+        env = spins.transverse_envelope(iso, offsets, weights, coarse / fs, t2_s)
         if step == 1:
             return env[:count]
         fine = np.arange(count)

@@ -1,0 +1,44 @@
+"""Shared fixtures: paths to the example configs and a simulated rig on a virtual clock."""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+import pytest
+
+ROOT = Path(__file__).resolve().parent.parent
+CONFIGS = ROOT / "configs"
+DEMO_RIG = CONFIGS / "rigs" / "demo-sim.toml"
+FID_SUDDEN = CONFIGS / "sequences" / "fid-sudden.toml"
+FID_ADIABATIC = CONFIGS / "sequences" / "fid-adiabatic-pulse.toml"
+
+# 2026-06-21 12:00 UTC: the simulator's diurnal swing is at its peak, so the field is steady.
+EPOCH_NOON_UTC = 1_782_043_200.0
+
+
+@pytest.fixture
+def demo_rig_path() -> Path:
+    return DEMO_RIG
+
+
+@pytest.fixture
+def write_toml(tmp_path: Path):
+    """Write a TOML text to a file in tmp_path and return its path."""
+
+    def _write(name: str, text: str) -> Path:
+        path = tmp_path / name
+        path.parent.mkdir(parents=True, exist_ok=True)
+        path.write_text(text)
+        return path
+
+    return _write
+
+
+def quiet_rig(loaded, **simulator_changes):
+    """The demo rig with interference switched off (or changed), for estimator tests."""
+    import dataclasses
+
+    quiet = dict(mains_amplitude_uv=0.0, spike_rate_per_s=0.0, ringing_amplitude_v=0.0)
+    quiet.update(simulator_changes)
+    sim = dataclasses.replace(loaded.config.simulator, **quiet)
+    return dataclasses.replace(loaded, config=dataclasses.replace(loaded.config, simulator=sim))
