@@ -15,12 +15,18 @@ def mains_hum(
     """Sum over h = 1..H of A_h cos(2 pi h f t + phi_h), with A_h = A / h for odd h and A / (3 h) for even h.
 
     Odd harmonics dominate in real installations (rectifier loads) [practice, no source].
+    Evaluated as Re(sum_h c_h z^h), z = exp(i 2 pi f t), c_h = A_h exp(i phi_h), by Horner's scheme.
     """
-    out = np.zeros_like(times_s)
-    for h in range(1, harmonics + 1):
-        a = amplitude_v / h if h % 2 else amplitude_v / (3.0 * h)
-        out += a * np.cos(2.0 * np.pi * h * fundamental_hz * times_s + phases_rad[h - 1])
-    return out
+    if harmonics < 1 or amplitude_v == 0.0:
+        return np.zeros_like(times_s)
+    h = np.arange(1, harmonics + 1)
+    coeffs = np.where(h % 2 == 1, amplitude_v / h, amplitude_v / (3.0 * h)) * np.exp(1j * phases_rad[:harmonics])
+    z = np.exp(2j * np.pi * fundamental_hz * times_s)
+    acc = np.full(times_s.shape, coeffs[-1], dtype=complex)
+    for c in coeffs[-2::-1]:
+        acc *= z
+        acc += c
+    return np.real(acc * z)
 
 
 def spikes(n_samples: int, sample_rate_hz: float, rate_per_s: float, amplitude_v: float,

@@ -85,7 +85,8 @@ def integrate_switch_off(
     theta_edges, _ = theta_and_mag(g)
     steps = np.maximum(1, np.ceil(np.abs(np.diff(theta_edges)) / MAX_DIRECTION_STEP_RAD).astype(int))
     interval = np.repeat(np.arange(g.size - 1), steps)
-    within = np.concatenate([(np.arange(k) + 0.5) / k for k in steps]) if steps.size else np.zeros(0)
+    first = np.repeat(np.cumsum(steps) - steps, steps)
+    within = (np.arange(interval.size) - first + 0.5) / steps[interval]
     sub_dt = dt / steps[interval]
     g_lo, g_hi = g[interval], g[interval + 1]
     theta_mid, mag_mid = theta_and_mag(g_lo + (g_hi - g_lo) * within)

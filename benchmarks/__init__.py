@@ -1,0 +1,1 @@
+"""Benchmarks: speed and accuracy targets, printed as ratios against a baseline in the same run."""
