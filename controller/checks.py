@@ -8,6 +8,7 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 from controller.config.schema import RigConfig
+from controller.physics.circuit import flyback_energy_j
 from controller.rigmodel import coil_model, coil_thermal_model
 from controller.sequences.timeline import Acquire, Polarise, Pulse, Timeline
 
@@ -64,7 +65,7 @@ def check_duty_cycle(timeline: Timeline, rig: RigConfig) -> list[Violation]:
 def check_flyback_energy(timeline: Timeline, rig: RigConfig) -> list[Violation]:
     """Energy stored in the coil at switch-off, E = 1/2 L I^2."""
     current, shot = _max_event(timeline, Polarise, "current_a")
-    energy = 0.5 * coil_model(rig.coil).inductance_h * current**2
+    energy = flyback_energy_j(coil_model(rig.coil).inductance_h, current)
     if energy > rig.limits.max_flyback_energy_j:
         return [Violation("flyback energy 1/2 L I^2", energy, rig.limits.max_flyback_energy_j, "J", f"shot {shot}")]
     return []

@@ -9,7 +9,8 @@ from controller.physics.thermal import ThermalModel, thermal_model_for
 
 def coil_model(coil: CoilConfig) -> CoilModel:
     return CoilModel(turns=coil.turns, radius_m=coil.radius_m, length_m=coil.length_m,
-                     wire_awg=coil.wire_awg, build_m=coil.build_m)
+                     wire_awg=coil.wire_awg, wire_diameter_m=coil.wire_diameter_m,
+                     insulation_m=coil.insulation_m, build_m=coil.build_m)
 
 
 def coil_thermal_model(coil: CoilConfig) -> ThermalModel:

@@ -15,6 +15,7 @@ from controller.cli.common import (
 )
 from controller.engine import Engine
 from controller.errors import PrecessError
+from controller.physics.circuit import flyback_energy_j
 from controller.records import EXIT_COMPLETED, Record, RunFinished, RunStarted, ShotAcquired
 from controller.rigmodel import coil_model
 from controller.sequences.timeline import Polarise
@@ -76,7 +77,7 @@ def run(args: argparse.Namespace) -> int:
         print(SIMULATED_NOTE, file=out)
     else:
         current = max((e.current_a for s in timeline.shots for e in s.of_kind(Polarise)), default=0.0)
-        energy = 0.5 * coil_model(loaded.config.coil).inductance_h * current**2
+        energy = flyback_energy_j(coil_model(loaded.config.coil).inductance_h, current)
         print(REAL_RIG_CAUTION.format(current=current, energy=energy), file=out)
     with Store(args.db) as store:
         engine = Engine(rig, clock)

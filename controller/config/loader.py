@@ -9,7 +9,7 @@ from typing import Any
 
 from controller.config.schema import FidSequence, RigConfig, SampleConfig, SiteConfig
 from controller.config.strict import build
-from controller.errors import ConfigError
+from controller.errors import ConfigError, InputError
 
 SEQUENCE_KINDS: dict[str, type] = {"fid": FidSequence}
 
@@ -57,6 +57,7 @@ class LoadedRig:
 def load_rig(path: str | Path) -> LoadedRig:
     """Load a rig file and, for a simulated rig, the site and sample files it names."""
     rig = build(RigConfig, read_toml(path), str(path))
+    _check_coil_winding(rig, str(path))
     site = sample = None
     if rig.simulator is not None:
         base = Path(path).parent
@@ -65,6 +66,18 @@ def load_rig(path: str | Path) -> LoadedRig:
     elif "simulated" in (rig.transceiver.driver, rig.supply.driver):
         raise ConfigError(str(path), "simulator", "missing; a rig with simulated drivers needs a [simulator] table")
     return LoadedRig(config=rig, path=str(path), site=site, sample=sample)
+
+
+def _check_coil_winding(rig: RigConfig, file: str) -> None:
+    """The wire is given once (AWG or bare diameter) and fits the winding length."""
+    from controller.rigmodel import coil_model
+
+    if (rig.coil.wire_awg is None) == (rig.coil.wire_diameter_m == 0.0):
+        raise ConfigError(file, "coil.wire_awg", "give exactly one of wire_awg and wire_diameter_m")
+    try:
+        coil_model(rig.coil)
+    except InputError as exc:
+        raise ConfigError(file, "coil", str(exc)) from None
 
 
 def load_sequence(path: str | Path) -> Any:

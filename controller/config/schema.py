@@ -45,10 +45,12 @@ class CoilConfig:
     """The solenoid that polarises and receives."""
 
     turns: int = field(min=1, max=100000)
-    radius_m: float = field(gt=0.0, max=2.0, help="mean winding radius")
+    radius_m: float = field(gt=0.0, max=2.0, help="inner radius of the winding = outer radius of the former")
     length_m: float = field(gt=0.0, max=5.0, help="winding length")
-    wire_awg: int = field(min=0, max=40)
-    build_m: float = field(0.0, min=0.0, max=0.5, help="radial depth of the winding (0 = single layer)")
+    wire_awg: int | None = field(None, min=0, max=40, help="AWG size (ASTM B258); or give wire_diameter_m")
+    wire_diameter_m: float = field(0.0, min=0.0, max=0.02, help="bare copper diameter; 0 = from wire_awg")
+    insulation_m: float = field(0.0, min=0.0, max=0.002, help="enamel added to the bare diameter (winding pitch)")
+    build_m: float = field(0.0, min=0.0, max=0.5, help="radial depth of the winding; 0 = close-wound layers")
     axis_to_field_deg: float = field(90.0, min=0.0, max=180.0, help="angle between coil axis and Earth's field")
     heat_capacity_j_per_k: float = field(0.0, min=0.0, help="thermal capacity; 0 = copper mass only")
     thermal_resistance_k_per_w: float = field(5.0, gt=0.0, help="winding to ambient")

@@ -69,3 +69,43 @@ def reciprocity_emf_v(
 def johnson_noise_density_v_per_rthz(resistance_ohm: float, temperature_c: float) -> float:
     """Thermal noise voltage density e_n = sqrt(4 k T R) in V/sqrt(Hz)."""
     return math.sqrt(4.0 * BOLTZMANN_J_PER_K * (temperature_c + KELVIN_OFFSET) * resistance_ohm)
+
+
+def adiabatic_rate_t_per_s(earth_field_t: float, gamma_rad_per_s_t: float = GAMMA_SHIELDED_RAD_PER_S_T) -> float:
+    """gamma Be^2, the rate of change of the polarising field that separates the regimes (T/s).
+
+    With Bp perpendicular to Be, the field direction turns fastest as Bp passes Be; the spins
+    follow it (adiabatic) when dBp/dt << gamma Be^2 and are left behind (sudden) when
+    dBp/dt >> gamma Be^2 [calc from Abragam's adiabatic condition; REFERENCE.md].
+    0.67 T/s at 50 uT.
+    """
+    return gamma_rad_per_s_t * earth_field_t**2
+
+
+SUDDEN_RATIO: float = 10.0     # common practice, no source
+ADIABATIC_RATIO: float = 0.1   # common practice, no source
+
+
+def switch_off_regime(field_rate_t_per_s: float, earth_field_t: float) -> tuple[float, str]:
+    """Ratio (dBp/dt) / (gamma Be^2) and its regime: 'sudden' (>= 10), 'adiabatic' (<= 0.1) or 'intermediate'."""
+    ratio = field_rate_t_per_s / adiabatic_rate_t_per_s(earth_field_t)
+    if ratio >= SUDDEN_RATIO:
+        return ratio, "sudden"
+    if ratio <= ADIABATIC_RATIO:
+        return ratio, "adiabatic"
+    return ratio, "intermediate"
+
+
+def sample_size_m(volume_l: float) -> float:
+    """Size of a sample for the gradient broadening: the cube root of its volume."""
+    return (volume_l * 1e-3) ** (1.0 / 3.0)
+
+
+def inhomogeneous_rate_per_s(gradient_nt_per_m: float, sample_length_m: float, gamma_hz_per_nt: float) -> float:
+    """1/T2' = pi (gamma/2pi) G L for a gradient G across a sample of size L (REFERENCE.md, [calc])."""
+    return math.pi * gamma_hz_per_nt * gradient_nt_per_m * sample_length_m
+
+
+def t2star_s(t2_s: float, gradient_nt_per_m: float, sample_length_m: float, gamma_hz_per_nt: float) -> float:
+    """1/T2* = 1/T2 + 1/T2'."""
+    return 1.0 / (1.0 / t2_s + inhomogeneous_rate_per_s(gradient_nt_per_m, sample_length_m, gamma_hz_per_nt))

@@ -16,7 +16,7 @@ from __future__ import annotations
 import math
 from dataclasses import dataclass
 
-from controller.physics.coil import COPPER_ALPHA_PER_K, REFERENCE_TEMPERATURE_C
+from controller.physics.wire import COPPER_ALPHA_PER_K, REFERENCE_TEMPERATURE_C
 
 
 @dataclass(frozen=True)
@@ -47,6 +47,26 @@ class ThermalModel:
         """T_inf = a / b, or +inf when the coil would run away."""
         a, b = self._coefficients(current_a)
         return a / b if b > 0 else math.inf
+
+    def heating_rate_k_per_s(self, current_a: float, temperature_c: float) -> float:
+        """Initial rate of rise, before any cooling: I^2 R(T) / C."""
+        return self.power_w(current_a, temperature_c) / self.heat_capacity_j_per_k
+
+    def max_duty_cycle(self, current_a: float, limit_c: float) -> float:
+        """Largest on-fraction whose mean power keeps the steady temperature at limit_c.
+
+        duty = (T_lim - T_amb) / (R_th I^2 R(T_lim)), capped at 1; valid when each pulse is
+        short against the thermal time constant R_th C [calc from the first-order model].
+        """
+        power = self.power_w(current_a, limit_c)
+        if power <= 0.0:
+            return 1.0
+        return max(0.0, min(1.0, (limit_c - self.ambient_c) / (self.thermal_resistance_k_per_w * power)))
+
+    @property
+    def time_constant_s(self) -> float:
+        """Thermal time constant R_th C (at zero current)."""
+        return self.thermal_resistance_k_per_w * self.heat_capacity_j_per_k
 
     def power_w(self, current_a: float, temperature_c: float) -> float:
         """Dissipation I^2 R(T)."""

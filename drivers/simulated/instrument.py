@@ -16,7 +16,9 @@ import numpy as np
 from controller.clock import Clock
 from controller.config.schema import RigConfig, SampleConfig, SiteConfig
 from controller.physics.constants import GAMMA_SHIELDED_HZ_PER_T, GAMMA_SHIELDED_RAD_PER_S_T
-from controller.physics.magnetisation import curie_magnetisation_a_per_m, water_proton_density_per_m3
+from controller.physics.magnetisation import (
+    curie_magnetisation_a_per_m, inhomogeneous_rate_per_s, sample_size_m, t2star_s, water_proton_density_per_m3,
+)
 from controller.rigmodel import coil_model, coil_thermal_model
 
 SECONDS_PER_DAY = 86400.0
@@ -73,13 +75,14 @@ class SimulatedInstrument:
     @property
     def inhomogeneous_rate_per_s(self) -> float:
         """1/T2' = pi * gamma/2pi * G * L, L the sample's cube-root size (REFERENCE.md)."""
-        length_m = self.sample_volume_m3 ** (1.0 / 3.0)
-        return math.pi * GAMMA_SHIELDED_HZ_PER_T * 1e-9 * self.site.gradient_nt_per_m * length_m
+        return inhomogeneous_rate_per_s(self.site.gradient_nt_per_m, sample_size_m(self.sample.volume_l),
+                                        GAMMA_SHIELDED_HZ_PER_T * 1e-9)
 
     @property
     def t2star_s(self) -> float:
         """1/T2* = 1/T2 + 1/T2'."""
-        return 1.0 / (1.0 / self.sample.t2_s + self.inhomogeneous_rate_per_s)
+        return t2star_s(self.sample.t2_s, self.site.gradient_nt_per_m, sample_size_m(self.sample.volume_l),
+                        GAMMA_SHIELDED_HZ_PER_T * 1e-9)
 
     def equilibrium_magnetisation_a_per_m(self, current_a: float) -> float:
         """Curie-law M0 at |B| = |Be + Bp| for the coil current."""
