@@ -254,3 +254,12 @@ def test_bad_coil_raises_one_clear_input_error(kwargs, words):
     base = {"turns": 500, "radius_m": 0.04, "length_m": 0.1, "wire_awg": 20}
     with pytest.raises(InputError, match=words):
         CoilModel(**{**base, **kwargs})
+
+
+def test_time_to_reach_a_temperature_inverts_the_step_response():
+    # source: the model's exact step response (controller.physics.thermal.ThermalModel.step)
+    model = ThermalModel(resistance_20c_ohm=4.36, heat_capacity_j_per_k=250.0, thermal_resistance_k_per_w=4.0,
+                         ambient_c=18.0)
+    t = model.time_to_reach_s(3.0, 18.0, 70.0)
+    assert model.step(18.0, 3.0, t) == pytest.approx(70.0, abs=1e-6)
+    assert model.time_to_reach_s(0.5, 18.0, 70.0) == math.inf  # 0.5 A never gets there

@@ -63,6 +63,24 @@ class ThermalModel:
             return 1.0
         return max(0.0, min(1.0, (limit_c - self.ambient_c) / (self.thermal_resistance_k_per_w * power)))
 
+    def time_to_reach_s(self, current_a: float, start_c: float, target_c: float) -> float:
+        """Time for a constant current to heat the coil from start_c to target_c (inf if it never does).
+
+        Inverts T(t) = T_inf + (T0 - T_inf) exp(-b t): t = ln((T0 - T_inf)/(T_target - T_inf)) / b,
+        and t = (T_target - T0)/a when b = 0.
+        """
+        if target_c <= start_c:
+            return 0.0
+        a, b = self._coefficients(current_a)
+        if abs(b) < 1e-15:
+            return (target_c - start_c) / a if a > 0 else math.inf
+        t_inf = a / b
+        ratio = (start_c - t_inf) / (target_c - t_inf)
+        if ratio <= 0:
+            return math.inf
+        t = math.log(ratio) / b
+        return t if t >= 0 else math.inf
+
     @property
     def time_constant_s(self) -> float:
         """Thermal time constant R_th C (at zero current)."""

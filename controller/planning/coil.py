@@ -118,6 +118,8 @@ def _heating(coil: CoilModel, duty: CoilDuty) -> Section:
         Row("polarise_s", "one polarising pulse", duty.polarise_s, "s", digits=".2f"),
         Row("rise_per_pulse_k", "rise over one pulse", after - th.ambient_c, "K", digits=".2f"),
         Row("steady_state_c", "steady temperature if left on", th.steady_state_c(i), "C", digits=".1f"),
+        Row("time_to_hot_s", f"left on, reaches {duty.hot_c:g} C after", th.time_to_reach_s(i, th.ambient_c, duty.hot_c),
+            "s", digits=".0f"),
         Row("max_duty_cycle", f"duty cycle that stays below {duty.hot_c:g} C", th.max_duty_cycle(i, duty.hot_c),
             "%", 100, ".0f"),
     ), notes=("insulation classes (IEC 60085) are hot-spot limits: A 105, E 120, B 130, F 155, H 180 C; "
