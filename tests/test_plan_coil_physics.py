@@ -263,3 +263,14 @@ def test_time_to_reach_a_temperature_inverts_the_step_response():
     t = model.time_to_reach_s(3.0, 18.0, 70.0)
     assert model.step(18.0, 3.0, t) == pytest.approx(70.0, abs=1e-6)
     assert model.time_to_reach_s(0.5, 18.0, 70.0) == math.inf  # 0.5 A never gets there
+
+
+def test_rig_file_with_two_wire_sizes_is_refused(tmp_path):
+    from controller.config.loader import load_rig
+    from controller.errors import ConfigError
+
+    rig = tmp_path / "rig.toml"
+    rig.write_text('name = "x"\n[coil]\nturns = 10\nradius_m = 0.04\nlength_m = 0.1\nwire_awg = 20\n'
+                   'wire_diameter_m = 0.001\n[simulator]\nsite = "s.toml"\nsample = "m.toml"\n')
+    with pytest.raises(ConfigError, match="coil: coil wire: give exactly one of wire_awg and wire_diameter_m"):
+        load_rig(rig)

@@ -72,8 +72,6 @@ def _check_coil_winding(rig: RigConfig, file: str) -> None:
     """The wire is given once (AWG or bare diameter) and fits the winding length."""
     from controller.rigmodel import coil_model
 
-    if (rig.coil.wire_awg is None) == (rig.coil.wire_diameter_m == 0.0):
-        raise ConfigError(file, "coil.wire_awg", "give exactly one of wire_awg and wire_diameter_m")
     try:
         coil_model(rig.coil)
     except InputError as exc:
