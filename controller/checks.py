@@ -11,6 +11,14 @@ from controller.config.schema import RigConfig
 from controller.physics.circuit import flyback_energy_j
 from controller.rigmodel import coil_model, coil_thermal_model
 from controller.sequences.timeline import Acquire, Polarise, Pulse, Timeline
+from controller.thermal_plan import (
+    TemperaturePrediction, current_profile, max_window_duty, on_intervals, predict_temperature,
+)
+
+#: Insulation thermal classes, hot-spot temperature in C (IEC 60085).
+INSULATION_CLASS_C = {"A": 105.0, "E": 120.0, "B": 130.0, "F": 155.0, "H": 180.0}
+#: Hot spot above the resistance-measured average: 10 K [mem: IEC 60034-1 thermal class tables].
+HOTSPOT_ALLOWANCE_K = 10.0
 
 
 @dataclass(frozen=True)
@@ -25,8 +33,9 @@ class Violation:
 
     def __str__(self) -> str:
         over = self.value - self.limit
-        return (f"{self.check}: {self.value:.4g} {self.unit} exceeds the limit {self.limit:.4g} {self.unit} "
-                f"by {over:.4g} {self.unit} ({self.where})")
+        unit = f" {self.unit}" if self.unit else ""
+        return (f"{self.check}: {self.value:.4g}{unit} exceeds the limit {self.limit:.4g}{unit} "
+                f"by {over:.4g}{unit} ({self.where})")
 
 
 def _max_event(timeline: Timeline, kind: type, attribute: str) -> tuple[float, int]:
@@ -53,12 +62,15 @@ def check_polarise_time(timeline: Timeline, rig: RigConfig) -> list[Violation]:
 
 
 def check_duty_cycle(timeline: Timeline, rig: RigConfig) -> list[Violation]:
-    """Duty = time with current on / total run time."""
-    on_s = sum(e.duration_s for s in timeline.shots for e in s.of_kind(Polarise))
-    total = timeline.duration_s
-    duty = on_s / total if total > 0 else 0.0
+    """Duty = largest share of any duty_window_s spent with current on (time before the run off).
+
+    The supervisor measures the same quantity during the run (controller.supervisor).
+    """
+    steps = current_profile(timeline.shots)
+    duty, end_s = max_window_duty(on_intervals(steps), rig.limits.duty_window_s)
     if duty > rig.limits.max_duty_cycle:
-        return [Violation("coil duty cycle", duty, rig.limits.max_duty_cycle, "", "whole run")]
+        return [Violation("coil duty cycle", duty, rig.limits.max_duty_cycle, "",
+                          f"over the {rig.limits.duty_window_s:g} s ending {end_s:.1f} s into the run")]
     return []
 
 
@@ -85,33 +97,55 @@ def check_acquisition(timeline: Timeline, rig: RigConfig) -> list[Violation]:
     return []
 
 
+def predict_run_temperature(timeline: Timeline, rig: RigConfig, start_c: float | None = None) -> TemperaturePrediction:
+    """Coil temperature at every point of the run from the rig's thermal model (one or two nodes)."""
+    return predict_temperature(coil_thermal_model(rig.coil), current_profile(timeline.shots),
+                               start_c=rig.coil.ambient_c if start_c is None else start_c)
+
+
 def predicted_peak_temperature_c(timeline: Timeline, rig: RigConfig, start_c: float | None = None) -> float:
-    """Peak coil temperature over the run from the first-order thermal model (controller.physics.thermal)."""
-    model = coil_thermal_model(rig.coil)
-    temperature = rig.coil.ambient_c if start_c is None else start_c
-    peak = temperature
+    """Peak coil temperature over the run (controller.physics.thermal, thermal_two_node)."""
+    return predict_run_temperature(timeline, rig, start_c).peak_c
+
+
+def _shot_at(timeline: Timeline, at_s: float) -> int:
+    elapsed = 0.0
     for shot in timeline.shots:
-        on_s = 0.0
-        for e in shot.of_kind(Polarise):
-            temperature = model.step(temperature, e.current_a, e.duration_s)
-            peak = max(peak, temperature)
-            on_s += e.duration_s
-        temperature = model.step(temperature, 0.0, shot.duration_s - on_s)
-    return peak
+        elapsed += shot.duration_s
+        if at_s <= elapsed + 1e-9:
+            return shot.index
+    return timeline.shots[-1].index if timeline.shots else -1
 
 
-def check_temperature(timeline: Timeline, rig: RigConfig) -> list[Violation]:
-    peak = predicted_peak_temperature_c(timeline, rig)
-    if peak > rig.limits.max_coil_temperature_c:
-        return [Violation("predicted coil temperature", peak, rig.limits.max_coil_temperature_c, "C",
-                          "first-order thermal model over the whole run")]
+def check_temperature(timeline: Timeline, rig: RigConfig, start_c: float | None = None) -> list[Violation]:
+    prediction = predict_run_temperature(timeline, rig, start_c)
+    if prediction.peak_c > rig.limits.max_coil_temperature_c:
+        start = rig.coil.ambient_c if start_c is None else start_c
+        return [Violation("predicted coil temperature", prediction.peak_c, rig.limits.max_coil_temperature_c, "C",
+                          f"{prediction.peak_at_s:.1f} s into the run, shot {_shot_at(timeline, prediction.peak_at_s)},"
+                          f" from {start:.1f} C")]
+    return []
+
+
+def check_insulation_margin(timeline: Timeline, rig: RigConfig) -> list[Violation]:
+    """The temperature limit must stay HOTSPOT_ALLOWANCE_K below the insulation class (IEC 60085)."""
+    allowed = INSULATION_CLASS_C[rig.coil.insulation_class] - HOTSPOT_ALLOWANCE_K
+    if rig.limits.max_coil_temperature_c > allowed:
+        return [Violation("configured temperature limit", rig.limits.max_coil_temperature_c, allowed, "C",
+                          f"insulation class {rig.coil.insulation_class} "
+                          f"({INSULATION_CLASS_C[rig.coil.insulation_class]:g} C hot spot, IEC 60085) "
+                          f"minus {HOTSPOT_ALLOWANCE_K:g} K for the hot spot above the average")]
     return []
 
 
 ALL_CHECKS = (check_current, check_polarise_time, check_duty_cycle, check_flyback_energy,
-              check_pulse_amplitude, check_acquisition, check_temperature)
+              check_pulse_amplitude, check_acquisition, check_temperature, check_insulation_margin)
 
 
-def check_all(timeline: Timeline, rig: RigConfig) -> list[Violation]:
-    """Every pre-run check; an empty list means the run may start."""
-    return [v for check in ALL_CHECKS for v in check(timeline, rig)]
+def check_all(timeline: Timeline, rig: RigConfig, start_c: float | None = None) -> list[Violation]:
+    """Every pre-run check; an empty list means the run may start.
+
+    start_c is the coil's temperature now (measured), if known; the ambient otherwise.
+    """
+    return [v for check in ALL_CHECKS
+            for v in (check(timeline, rig, start_c) if check is check_temperature else check(timeline, rig))]

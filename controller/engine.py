@@ -22,11 +22,14 @@ from typing import Any, Callable
 from controller import __version__
 from controller.clock import Clock
 from controller.records import (
-    EXIT_COMPLETED, EXIT_FAILED, EXIT_STOPPED, Record, RunFinished, RunStarted, ShotAcquired, StatusSample,
+    EXIT_COMPLETED, EXIT_FAILED, EXIT_INTERLOCK, EXIT_STOPPED, Record, RunFinished, RunStarted, ShotAcquired,
+    StatusSample,
 )
 from controller.rig import Rig
 from controller.sequences.render import render_segment
 from controller.sequences.timeline import Acquire, Polarise, Pulse, ShotPlan, SwitchOff, Timeline
+from controller.supervisor.machine import InterlockTrip, Supervisor
+from controller.thermal_plan import current_profile
 
 log = logging.getLogger(__name__)
 Sink = Callable[[Record], None]
@@ -51,8 +54,10 @@ class RunOutcome:
 class Engine:
     """Runs timelines on one rig.  Thread-safe stop(); run() is synchronous."""
 
-    def __init__(self, rig: Rig, clock: Clock, control_period_s: float = 0.1) -> None:
-        self.rig = rig
+    def __init__(self, rig: Rig, clock: Clock, control_period_s: float = 0.1,
+                 supervisor: Supervisor | None = None) -> None:
+        self.supervisor = supervisor
+        self.rig = supervisor.watch(rig) if supervisor is not None else rig
         self.clock = clock
         self.control_period_s = control_period_s
         self.critical_sinks: list[Sink] = []
@@ -64,6 +69,15 @@ class Engine:
         self._stop_reason = reason
         self._stop.set()
 
+    def emergency_stop(self, reason: str = "emergency stop by operator") -> list[str]:
+        """Stop, and make the rig safe at once from the calling thread (the TUI key).
+
+        Safe-state driver methods are idempotent; a driver must let them through while
+        another thread waits on it.  Returns the steps that failed.
+        """
+        self.stop(reason)
+        return self.rig.make_safe()
+
     # ------------------------------------------------------------------------------------
     def _emit(self, record: Record) -> None:
         for sink in self.critical_sinks:
@@ -71,6 +85,9 @@ class Engine:
                 sink(record)
             except Exception as exc:
                 raise CriticalSinkError(f"store failed: {exc}") from exc
+        self._emit_best_effort(record)
+
+    def _emit_best_effort(self, record: Record) -> None:
         for sink in self.best_effort_sinks:
             try:
                 sink(record)
@@ -92,15 +109,38 @@ class Engine:
             self._status(run_id)
 
     def _status(self, run_id: str) -> None:
+        if self.supervisor is not None:
+            self._supervised_status(run_id)
+            return
         readings = {"current_a": self.rig.supply.read_current(), "voltage_v": self.rig.supply.read_voltage()}
         if self.rig.board is not None:
             readings.update(self.rig.board.read_sensors())
         self._emit(StatusSample(run_id=run_id, at_s=self.clock.now(), readings=readings))
 
+    def _supervised_status(self, run_id: str) -> None:
+        """Sample, check; on a finding make the rig safe before anything else, then record and stop."""
+        readings = self.supervisor.read(self.rig)
+        derived, finding = self.supervisor.evaluate(readings)
+        now = self.clock.now()
+        if finding is None:
+            self._emit(StatusSample(run_id=run_id, at_s=now, readings=readings | derived))
+            return
+        failures = self.rig.make_safe()
+        record = self.supervisor.trip(run_id, finding, now, failures)
+        try:
+            self._emit(StatusSample(run_id=run_id, at_s=now, readings=readings | derived))
+            self._emit(record)
+        except CriticalSinkError as exc:
+            log.error("could not store the trip record (it is in the latch): %s", exc)
+            self._emit_best_effort(record)
+        raise InterlockTrip(record)
+
     # ------------------------------------------------------------------------------------
     def run(self, timeline: Timeline, config_snapshot: dict[str, Any], run_id: str | None = None) -> RunOutcome:
         run_id = run_id or uuid.uuid4().hex[:12]
         self._stop.clear()
+        if self.supervisor is not None:  # refuses (raises) before anything is energised
+            self.supervisor.begin(current_profile(timeline.shots), self.rig)
         status, reason, done = EXIT_FAILED, "did not start", 0
         started = False
         try:
@@ -116,11 +156,17 @@ class Engine:
             status, reason = EXIT_COMPLETED, f"all {done} shot(s) acquired"
         except StopRequested as exc:
             status, reason = EXIT_STOPPED, str(exc) or "stop requested"
+        except InterlockTrip as exc:
+            status, reason = EXIT_INTERLOCK, f"interlock {exc}"
         except KeyboardInterrupt:
             status, reason = EXIT_STOPPED, "interrupted by operator (Ctrl-C / SIGTERM)"
             raise
         except CriticalSinkError as exc:
             status, reason = EXIT_FAILED, str(exc)
+            if self.supervisor is not None:  # a store failure is a trip: safe at once, latched
+                record = self.supervisor.store_failure(run_id, str(exc), self.clock.now(), self.rig.make_safe())
+                self._emit_best_effort(record)
+                status, reason = EXIT_INTERLOCK, f"interlock store_failure: {exc}"
         except Exception as exc:  # noqa: BLE001 - any driver error ends the run safely
             status, reason = EXIT_FAILED, f"{type(exc).__name__}: {exc}"
         finally:

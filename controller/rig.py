@@ -22,6 +22,7 @@ class Rig:
     simulated: bool
     instrument: Any = None
     notes: list[str] = field(default_factory=list)
+    host: Any = None  # host readings for the supervisor (controller.supervisor.host); None = the local machine
 
     def make_safe(self) -> list[str]:
         """Current off, transmitter silent, coil path idle.  Tries every step; returns what failed."""
@@ -40,6 +41,7 @@ def build_rig(loaded: LoadedRig, clock: Clock) -> Rig:
     cfg = loaded.config
     if cfg.transceiver.driver == "simulated" and cfg.supply.driver == "simulated":
         from drivers.simulated.board import SimulatedBoard
+        from drivers.simulated.host import SimulatedHost
         from drivers.simulated.instrument import SimulatedInstrument
         from drivers.simulated.supply import SimulatedSupply
         from drivers.simulated.transceiver import SimulatedTransceiver
@@ -48,6 +50,7 @@ def build_rig(loaded: LoadedRig, clock: Clock) -> Rig:
             raise ConfigError(loaded.path, "simulator", "a simulated rig needs its site and sample files")
         instrument = SimulatedInstrument(cfg, loaded.site, loaded.sample, clock)
         return Rig(name=cfg.name, supply=SimulatedSupply(instrument), transceiver=SimulatedTransceiver(instrument),
-                   board=SimulatedBoard(instrument), simulated=True, instrument=instrument)
+                   board=SimulatedBoard(instrument), simulated=True, instrument=instrument,
+                   host=SimulatedHost(instrument))
     raise ConfigError(loaded.path, "transceiver.driver",
                       f"{cfg.transceiver.driver!r} with supply {cfg.supply.driver!r} is not buildable yet; allowed: 'simulated'")

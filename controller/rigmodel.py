@@ -4,7 +4,7 @@ from __future__ import annotations
 
 from controller.config.schema import CoilConfig
 from controller.physics.coil import CoilModel
-from controller.physics.thermal import ThermalModel, thermal_model_for
+from controller.physics.thermal import CoilThermal, thermal_model_for
 
 
 def coil_model(coil: CoilConfig) -> CoilModel:
@@ -13,5 +13,5 @@ def coil_model(coil: CoilConfig) -> CoilModel:
                      insulation_m=coil.insulation_m, build_m=coil.build_m)
 
 
-def coil_thermal_model(coil: CoilConfig) -> ThermalModel:
+def coil_thermal_model(coil: CoilConfig) -> CoilThermal:
     return thermal_model_for(coil, coil_model(coil))

@@ -10,14 +10,13 @@ from controller.analysis.run_analysis import analyse_shots, window_of
 from controller.checks import check_all
 from controller.cli.cmd_runs import DEFAULT_DB
 from controller.cli.common import (
-    REAL_RIG_CAUTION, SIMULATED_NOTE, config_snapshot, load_and_compile, load_rig, make_clock, open_rig,
-    positive_int, to_json,
+    SIMULATED_NOTE, config_snapshot, load_and_compile, load_rig, make_clock, open_rig, positive_int,
+    real_rig_caution, to_json,
 )
-from controller.engine import Engine
-from controller.errors import PrecessError
-from controller.physics.circuit import flyback_energy_j
-from controller.records import EXIT_COMPLETED, Record, RunFinished, RunStarted, ShotAcquired
-from controller.rigmodel import coil_model
+from controller.cli.supervision import add_state_dir_argument, latch_for, supervised_engine
+from controller.cooling import insert_cooling_pauses, plan_cooling_pauses
+from controller.errors import InputError, PrecessError
+from controller.records import EXIT_COMPLETED, InterlockTripped, Record, RunFinished, RunStarted, ShotAcquired
 from controller.sequences.timeline import Polarise
 from controller.store import Store
 
@@ -33,6 +32,9 @@ def register(sub: argparse._SubParsersAction) -> None:
     p.add_argument("--db", default=DEFAULT_DB, help=f"store file (default {DEFAULT_DB})")
     p.add_argument("--json", action="store_true", help="print the result as JSON (progress goes to stderr)")
     p.add_argument("--realtime", action="store_true", help="pace a simulated rig in real time")
+    p.add_argument("--cooling-pauses", action="store_true",
+                   help="insert the pauses the coil needs to stay within its temperature and duty limits")
+    add_state_dir_argument(p)
     p.set_defaults(handler=run)
 
 
@@ -58,13 +60,19 @@ class Progress:
                 fit = f"no fit yet ({exc})"
             print(f"  shot {record.shot_index + 1}/{self.planned} stored, dead time {record.dead_time_s * 1e3:.1f} ms;"
                   f" stack of {len(self.windows)}: {fit}", file=self.out, flush=True)
+        elif isinstance(record, InterlockTripped):
+            print(f"  TRIP {record.check}: {record.reason}", file=self.out, flush=True)
         elif isinstance(record, RunFinished):
             print(f"run {record.run_id} {record.exit_status}: {record.reason}", file=self.out)
 
 
 def run(args: argparse.Namespace) -> int:
     loaded = load_rig(args.rig)
+    latch = latch_for(loaded, args.state_dir)
+    latch.require_clear()
     spec, timeline = load_and_compile(args.sequence, loaded, args.shots)
+    if args.cooling_pauses:
+        timeline = _with_cooling_pauses(timeline, loaded)
     violations = check_all(timeline, loaded.config)
     if violations:
         for v in violations:
@@ -77,11 +85,9 @@ def run(args: argparse.Namespace) -> int:
         print(SIMULATED_NOTE, file=out)
     else:
         current = max((e.current_a for s in timeline.shots for e in s.of_kind(Polarise)), default=0.0)
-        energy = flyback_energy_j(coil_model(loaded.config.coil).inductance_h, current)
-        print(REAL_RIG_CAUTION.format(current=current, energy=energy), file=out)
+        print(real_rig_caution(loaded.config, current), file=out)
     with Store(args.db) as store:
-        engine = Engine(rig, clock)
-        engine.critical_sinks.append(store.write)
+        engine = supervised_engine(loaded, rig, clock, store, latch)
         engine.best_effort_sinks.append(Progress(out))
         outcome = engine.run(timeline, config_snapshot(loaded, spec, args.sequence))
         shots = list(store.shots(outcome.run_id))
@@ -105,3 +111,14 @@ def run(args: argparse.Namespace) -> int:
                   f"B = {summary['field_nt']:.2f} +/- {summary['field_sd_nt']:.2f} nT, "
                   f"T2* = {summary['t2star_s']:.3f} +/- {summary['t2star_sd_s']:.3f} s, SNR {summary['snr']:.1f}")
     return 0 if outcome.exit_status == EXIT_COMPLETED else EXIT_RUN_NOT_COMPLETED
+
+
+def _with_cooling_pauses(timeline: Any, loaded: Any) -> Any:
+    plan = plan_cooling_pauses(timeline.shots, loaded.config)
+    if plan.infeasible_shots:
+        raise InputError(f"shot(s) {', '.join(map(str, plan.infeasible_shots))} exceed the coil's limits even "
+                         "from a cold coil; no pause can help")
+    try:
+        return insert_cooling_pauses(timeline, plan.pauses)
+    except ValueError as exc:
+        raise InputError(str(exc)) from None

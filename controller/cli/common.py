@@ -10,15 +10,33 @@ from typing import Any
 
 from controller.clock import Clock, VirtualClock, WallClock
 from controller.config.loader import LoadedRig, load_rig, load_sequence, with_shots
+from controller.config.schema import RigConfig
 from controller.errors import InputError
+from controller.physics.circuit import flyback_energy_j
 from controller.physics.constants import gamma_hz_per_nt
 from controller.rig import Rig, build_rig
+from controller.rigmodel import coil_model
 from controller.sequences.compile import compile_sequence
 from controller.sequences.timeline import Timeline
 
 SIMULATED_NOTE = "simulated rig: nothing is energised"
 REAL_RIG_CAUTION = ("CAUTION: this run energises a real coil (up to {current:g} A, {energy:.2g} J stored). "
                     "Keep clear of the coil and its leads; see safety.md.")
+
+
+def real_rig_caution(cfg: RigConfig, max_current_a: float) -> str:
+    """The short caution shown before a real (non-simulated) coil is energised, with the limits in force."""
+    energy_j = flyback_energy_j(coil_model(cfg.coil).inductance_h, max_current_a)
+    lim, sup = cfg.limits, cfg.supervisor
+    return "\n".join([
+        REAL_RIG_CAUTION.format(current=max_current_a, energy=energy_j),
+        f"  The stored energy returns at switch-off (clamp {cfg.coil.clamp_voltage_v:g} V). The coil gets hot and its"
+        " field is strong close by: no pacemakers, tools or cards near it.",
+        f"  Limits in force: {lim.max_current_a:g} A, {lim.max_coil_temperature_c:g} C coil "
+        f"(insulation class {cfg.coil.insulation_class}), duty {lim.max_duty_cycle:.0%} over {lim.duty_window_s:g} s, "
+        f"{lim.max_flyback_energy_j:g} J flyback, supply limit {sup.supply_compliance_v:g} V.",
+        "  Ctrl-C stops and switches the coil off. Read safety.md; local electrical codes come first.",
+    ])
 
 
 def positive_int(text: str) -> int:

@@ -56,6 +56,9 @@ class CoilConfig:
     thermal_resistance_k_per_w: float = field(5.0, gt=0.0, help="winding to ambient")
     ambient_c: float = field(20.0, min=-40.0, max=60.0)
     clamp_voltage_v: float = field(200.0, gt=0.0, max=2000.0, help="flyback clamp at switch-off")
+    former_heat_capacity_j_per_k: float = field(0.0, min=0.0, help="second thermal node (former, potting); 0 = one node")
+    winding_to_former_k_per_w: float = field(1.0, gt=0.0, help="thermal resistance winding -> former (two-node model)")
+    insulation_class: str = field("A", choices=("A", "E", "B", "F", "H"), help="IEC 60085 thermal class of the coil")
 
 
 @dataclass(frozen=True, kw_only=True)
@@ -69,6 +72,29 @@ class LimitsConfig:
     max_coil_temperature_c: float = field(80.0, min=20.0, max=180.0, help="IEC 60085 class minus margin")
     max_pulse_amplitude_v: float = field(1.0, gt=0.0, max=100.0)
     max_acquire_s: float = field(10.0, gt=0.0, max=600.0)
+    duty_window_s: float = field(120.0, gt=0.0, max=86400.0, help="averaging window of the duty cycle")
+
+
+@dataclass(frozen=True, kw_only=True)
+class SupervisorConfig:
+    """How the supervisor watches a run (controller/supervisor): sampled every control_period_s."""
+
+    control_period_s: float = field(0.1, min=0.01, max=1.0, help="status sampling and trip reaction time")
+    settle_s: float = field(0.25, min=0.0, max=10.0, help="after a current change, before readback is compared")
+    current_tolerance_fraction: float = field(0.05, gt=0.0, max=1.0, help="readback vs setpoint")
+    current_tolerance_a: float = field(0.03, gt=0.0, max=10.0, help="absolute readback tolerance (and 'off')")
+    over_current_fraction: float = field(0.05, min=0.0, max=1.0, help="margin above limits.max_current_a")
+    off_voltage_v: float = field(0.5, gt=0.0, max=100.0, help="supply voltage above this while off = still live")
+    supply_compliance_v: float = field(30.0, gt=0.0, max=1000.0, help="the supply's voltage limit")
+    compliance_fraction: float = field(0.98, gt=0.0, max=1.0, help="readback at this share of the limit = in compliance")
+    short_resistance_fraction: float = field(0.5, gt=0.0, max=1.0, help="V/I below this share of R(T) = shorted")
+    cold_resistance_ohm: float = field(0.0, min=0.0, help="coil + leads measured at cold_resistance_at_c; 0 = from the winding")
+    cold_resistance_at_c: float = field(20.0, min=-40.0, max=60.0)
+    sense_current_a: float = field(0.05, gt=0.0, max=10.0, help="least current for the resistance method")
+    sensor_disagreement_k: float = field(15.0, gt=0.0, max=200.0, help="resistance vs thermistor temperature")
+    heartbeat_timeout_s: float = field(0.3, gt=0.0, max=60.0, help="board silent this long = heartbeat lost")
+    min_battery_v: float = field(0.0, min=0.0, max=100.0, help="0 = no battery watched")
+    min_disk_free_mb: float = field(200.0, min=0.0, help="free space left beside the store")
 
 
 @dataclass(frozen=True, kw_only=True)
@@ -120,6 +146,7 @@ class RigConfig:
     supply: DriverConfig = field(default_factory=DriverConfig)
     simulator: SimulatorConfig | None = field(None)
     description: str = field("")
+    supervisor: SupervisorConfig = field(default_factory=SupervisorConfig)
 
 
 @dataclass(frozen=True, kw_only=True)

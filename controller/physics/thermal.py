@@ -9,14 +9,38 @@ For a constant current this is linear in T, dT/dt = a - b T with
 whose exact solution is T(t) = T_inf + (T0 - T_inf) exp(-b t), T_inf = a / b.  When b <= 0
 the coil runs away (heating grows faster than cooling); the model then integrates the
 linear growth T(t) = T0 + (a - b T0) t exactly for b = 0 and exp growth for b < 0.
+
+Every thermal model of a coil offers the same small state interface (`CoilThermal`):
+`initial_state`, `advance` and `winding_c`; the two-node model lives in
+controller.physics.thermal_two_node.
 """
 
 from __future__ import annotations
 
 import math
 from dataclasses import dataclass
+from typing import Protocol
 
 from controller.physics.wire import COPPER_ALPHA_PER_K, REFERENCE_TEMPERATURE_C
+from controller.physics.thermal_two_node import TwoNodeThermalModel
+
+
+ThermalState = tuple[float, ...]
+
+
+class CoilThermal(Protocol):
+    """A lumped thermal model of a coil: a state of node temperatures (C), the winding's first."""
+
+    ambient_c: float
+
+    def initial_state(self, temperature_c: float) -> ThermalState:
+        """Every node at temperature_c."""
+
+    def advance(self, state: ThermalState, current_a: float, duration_s: float) -> ThermalState:
+        """The state after holding current_a for duration_s (exact for a constant current)."""
+
+    def winding_c(self, state: ThermalState) -> float:
+        """The winding's (average, resistance-method) temperature."""
 
 
 @dataclass(frozen=True)
@@ -25,13 +49,23 @@ class ThermalModel:
     heat_capacity_j_per_k: float
     thermal_resistance_k_per_w: float
     ambient_c: float
+    alpha_per_k: float = COPPER_ALPHA_PER_K
 
     def _coefficients(self, current_a: float) -> tuple[float, float]:
         c = self.heat_capacity_j_per_k
         p20 = current_a**2 * self.resistance_20c_ohm
-        a = (p20 * (1.0 - REFERENCE_TEMPERATURE_C * COPPER_ALPHA_PER_K) + self.ambient_c / self.thermal_resistance_k_per_w) / c
-        b = (1.0 / self.thermal_resistance_k_per_w - p20 * COPPER_ALPHA_PER_K) / c
+        a = (p20 * (1.0 - REFERENCE_TEMPERATURE_C * self.alpha_per_k) + self.ambient_c / self.thermal_resistance_k_per_w) / c
+        b = (1.0 / self.thermal_resistance_k_per_w - p20 * self.alpha_per_k) / c
         return a, b
+
+    def initial_state(self, temperature_c: float) -> ThermalState:
+        return (float(temperature_c),)
+
+    def advance(self, state: ThermalState, current_a: float, duration_s: float) -> ThermalState:
+        return (self.step(state[0], current_a, duration_s),)
+
+    def winding_c(self, state: ThermalState) -> float:
+        return state[0]
 
     def step(self, temperature_c: float, current_a: float, duration_s: float) -> float:
         """Temperature after holding current_a for duration_s from temperature_c (exact)."""
@@ -89,12 +123,25 @@ class ThermalModel:
     def power_w(self, current_a: float, temperature_c: float) -> float:
         """Dissipation I^2 R(T)."""
         return current_a**2 * self.resistance_20c_ohm * (
-            1.0 + COPPER_ALPHA_PER_K * (temperature_c - REFERENCE_TEMPERATURE_C))
+            1.0 + self.alpha_per_k * (temperature_c - REFERENCE_TEMPERATURE_C))
 
 
-def thermal_model_for(coil_config: object, coil_model: object) -> ThermalModel:
-    """Build the model from a CoilConfig and its CoilModel (heat capacity 0 means copper alone)."""
+def thermal_model_for(coil_config: object, coil_model: object) -> CoilThermal:
+    """Build the model from a CoilConfig and its CoilModel (heat capacity 0 means copper alone).
+
+    A positive `former_heat_capacity_j_per_k` selects the two-node model.
+    """
     heat_capacity = coil_config.heat_capacity_j_per_k or coil_model.heat_capacity_j_per_k
+    former_j_per_k = getattr(coil_config, "former_heat_capacity_j_per_k", 0.0)
+    if former_j_per_k > 0.0:
+        return TwoNodeThermalModel(
+            resistance_20c_ohm=coil_model.resistance_20c_ohm,
+            winding_heat_capacity_j_per_k=heat_capacity,
+            winding_to_ambient_k_per_w=coil_config.thermal_resistance_k_per_w,
+            former_heat_capacity_j_per_k=former_j_per_k,
+            winding_to_former_k_per_w=coil_config.winding_to_former_k_per_w,
+            ambient_c=coil_config.ambient_c,
+        )
     return ThermalModel(
         resistance_20c_ohm=coil_model.resistance_20c_ohm,
         heat_capacity_j_per_k=heat_capacity,

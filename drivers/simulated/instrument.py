@@ -26,10 +26,41 @@ SECONDS_PER_DAY = 86400.0
 
 @dataclass
 class Faults:
-    """Faults that tests can inject (more arrive with the interlock work)."""
+    """Faults that tests can inject.
+
+    The `*_at_s` faults are off while None and active from that clock time on (seconds since
+    the epoch, on the instrument's clock), so a test can place a fault mid-pulse.
+    """
 
     supply_dead: bool = False
     transceiver_error: bool = False
+    open_coil_at_s: float | None = None  # the coil circuit breaks: no current, supply at its voltage limit
+    shorted_coil_at_s: float | None = None  # the leads short: current flows, not through the coil
+    stuck_supply_at_s: float | None = None  # the supply ignores new setpoints and output_off
+    rising_resistance_at_s: float | None = None  # a failing joint: series resistance grows
+    rising_resistance_ohm_per_s: float = 0.5
+    board_silent_at_s: float | None = None  # the board stops answering (heartbeat lost)
+    battery_sag_at_s: float | None = None  # the battery voltage falls
+    battery_sag_v_per_s: float = 0.5
+    overshoot_at_s: float | None = None  # the supply delivers more than its setpoint
+    overshoot_fraction: float = 0.6
+    compliance_drop_at_s: float | None = None  # the supply's voltage limit falls (sagging mains)
+    dropped_compliance_v: float = 5.0
+    thermistor_offset_at_s: float | None = None  # the thermistor comes loose and reads low
+    thermistor_offset_k: float = -30.0
+    store_write_failure_at_s: float | None = None  # the database refuses to grow (simulated host)
+    disk_full_at_s: float | None = None  # free space beside the store reads near zero (simulated host)
+
+    def active(self, name: str, now_s: float) -> bool:
+        onset = getattr(self, f"{name}_at_s")
+        return onset is not None and now_s >= onset
+
+    def since_s(self, name: str, now_s: float) -> float:
+        """Seconds the fault has been active (0 when it is not)."""
+        return now_s - getattr(self, f"{name}_at_s") if self.active(name, now_s) else 0.0
+
+
+SHORT_RESISTANCE_OHM = 0.02
 
 
 class SimulatedInstrument:
@@ -49,7 +80,9 @@ class SimulatedInstrument:
         self.faults = Faults()
         self.current_a = 0.0
         self.output_on = False
-        self.coil_temperature_c = rig.coil.ambient_c
+        self.supply_live = False  # the supply's output is on (whether or not the coil carries current)
+        self.compliance_v = rig.supervisor.supply_compliance_v
+        self.thermal_state = self.thermal.initial_state(rig.coil.ambient_c)
         self.proton_density_per_m3 = water_proton_density_per_m3(sample.temperature_c)
         self.magnetisation_a_per_m = 0.0  # along the instantaneous total field
         self.path = "idle"
@@ -99,8 +132,8 @@ class SimulatedInstrument:
         dt = now - self._last_s
         if dt <= 0:
             return
-        current = self.current_a if self.output_on else 0.0
-        self.coil_temperature_c = self.thermal.step(self.coil_temperature_c, current, dt)
+        current = self.coil_current_a(self._last_s)
+        self.thermal_state = self.thermal.advance(self.thermal_state, current, dt)
         m_eq = self.equilibrium_magnetisation_a_per_m(current)
         e1 = math.exp(-dt / self.sample.t1_s)
         self.magnetisation_a_per_m = m_eq + (self.magnetisation_a_per_m - m_eq) * e1
@@ -110,14 +143,46 @@ class SimulatedInstrument:
         self.advance()
         self.current_a = current_a
         self.output_on = current_a > 0
+        self.supply_live = current_a > 0
 
     def switch_off(self) -> None:
+        """The coil circuit opens (gate, relay or supply off): no current through the coil."""
         self.advance()
-        self.current_a = 0.0
         self.output_on = False
+        if not self.supply_live:
+            self.current_a = 0.0
+
+    @property
+    def coil_temperature_c(self) -> float:
+        """The winding's temperature (first node of the thermal state)."""
+        return self.thermal.winding_c(self.thermal_state)
+
+    @coil_temperature_c.setter
+    def coil_temperature_c(self, temperature_c: float) -> None:
+        """Set every thermal node to temperature_c (a coil that starts warm)."""
+        self.thermal_state = self.thermal.initial_state(temperature_c)
 
     def coil_resistance_ohm(self) -> float:
         return self.coil.resistance_ohm(self.coil_temperature_c)
+
+    def circuit_resistance_ohm(self, at_s: float | None = None) -> float:
+        """Coil R(T) plus any resistance a failing joint has added."""
+        t = self.clock.now() if at_s is None else at_s
+        f = self.faults
+        return self.coil_resistance_ohm() + f.rising_resistance_ohm_per_s * f.since_s("rising_resistance", t)
+
+    def supply_limit_v(self, at_s: float) -> float:
+        f = self.faults
+        return min(self.compliance_v, f.dropped_compliance_v) if f.active("compliance_drop", at_s) else self.compliance_v
+
+    def coil_current_a(self, at_s: float | None = None) -> float:
+        """Current through the winding: zero when off, open or bypassed; capped by the voltage limit."""
+        t = self.clock.now() if at_s is None else at_s
+        f = self.faults
+        if not self.output_on or f.active("open_coil", t) or f.active("shorted_coil", t):
+            return 0.0
+        current = self.current_a * (1.0 + (f.overshoot_fraction if f.active("overshoot", t) else 0.0))
+        return min(current, self.supply_limit_v(t) / self.circuit_resistance_ohm(t))
 
     def mains_hz(self, at_s: float) -> float:
         """Mains fundamental wandering slowly (period ~17 min) by up to mains_drift_hz."""

@@ -1,11 +1,17 @@
-"""Simulated polarising supply: drives the shared instrument; readback shows the coil's R(T)."""
+"""Simulated polarising supply: drives the shared instrument; readback shows the coil's R(T).
+
+Faults (drivers.simulated.instrument.Faults) change what it does and reads back: an open
+coil reads no current at the voltage limit, a short reads the set current at almost no
+voltage, a stuck supply ignores setpoints and output_off, an overshoot delivers more than
+asked, a failing joint or a lowered voltage limit push it into compliance.
+"""
 
 from __future__ import annotations
 
 from typing import Any
 
 from controller.errors import DriverError
-from drivers.simulated.instrument import SimulatedInstrument
+from drivers.simulated.instrument import SHORT_RESISTANCE_OHM, SimulatedInstrument
 
 READBACK_NOISE_FRACTION = 1e-4
 
@@ -15,24 +21,46 @@ class SimulatedSupply:
         self.inst = instrument
 
     def describe(self) -> dict[str, Any]:
-        return {"driver": "simulated", "role": "supply"}
+        return {"driver": "simulated", "role": "supply", "compliance_v": self.inst.compliance_v}
+
+    def _stuck(self) -> bool:
+        return self.inst.faults.active("stuck_supply", self.inst.clock.now())
 
     def set_current(self, current_a: float) -> None:
         if self.inst.faults.supply_dead:
             raise DriverError("simulated supply: no reply (injected fault)")
-        self.inst.set_current(current_a)
+        if not self._stuck():
+            self.inst.set_current(current_a)
+
+    def _noisy(self, value: float) -> float:
+        return value * (1.0 + READBACK_NOISE_FRACTION * self.inst.rng.standard_normal())
 
     def read_current(self) -> float:
-        self.inst.advance()
-        i = self.inst.current_a if self.inst.output_on else 0.0
-        return i * (1.0 + READBACK_NOISE_FRACTION * self.inst.rng.standard_normal())
+        inst = self.inst
+        inst.advance()
+        now = inst.clock.now()
+        if not inst.supply_live:
+            return 0.0
+        if inst.faults.active("shorted_coil", now):
+            return self._noisy(inst.current_a)
+        return self._noisy(inst.coil_current_a(now))
 
     def read_voltage(self) -> float:
-        """V = I R(T) in steady state (the resistance method reads coil temperature from it)."""
-        self.inst.advance()
-        i = self.inst.current_a if self.inst.output_on else 0.0
-        return i * self.inst.coil_resistance_ohm() * (1.0 + READBACK_NOISE_FRACTION * self.inst.rng.standard_normal())
+        """V = I R(T) while the coil carries current (the resistance method reads coil temperature from it)."""
+        inst = self.inst
+        inst.advance()
+        now = inst.clock.now()
+        if not inst.supply_live:
+            return 0.0
+        if inst.faults.active("shorted_coil", now):
+            return self._noisy(inst.current_a * SHORT_RESISTANCE_OHM)
+        if inst.output_on and not inst.faults.active("open_coil", now):
+            return self._noisy(inst.coil_current_a(now) * inst.circuit_resistance_ohm(now))
+        return self._noisy(inst.supply_limit_v(now))  # no load: the output sits at its voltage limit
 
     def output_off(self) -> None:
-        """Idempotent; never raises for 'already off'."""
+        """Idempotent; never raises for 'already off'.  A stuck supply silently stays on."""
+        if self._stuck():
+            return
+        self.inst.supply_live = False
         self.inst.switch_off()

@@ -1,0 +1,95 @@
+"""Two-node lumped thermal model of a coil: the winding and a slower node (former, potting).
+
+    C_w dT_w/dt = I^2 R20 (1 + alpha (T_w - 20 C)) - (T_w - T_amb) / R_wa - (T_w - T_f) / R_wf
+    C_f dT_f/dt = (T_w - T_f) / R_wf
+
+The winding loses heat to ambient through R_wa and exchanges heat with the former through
+R_wf; the former is a heat reservoir reached only through the winding.  In steady state
+T_f = T_w and T_w = T_amb + P R_wa, so R_wa keeps the meaning of the one-node model's
+thermal resistance, and C_f -> 0 gives back the one-node model.  The transfer function
+from power to winding temperature, R_wa (1 + s tau_f) / (second-order polynomial) with
+tau_f = C_f R_wf, has four free coefficients, so one temperature record (the resistance
+method) identifies all four parameters.  (Lumped-capacitance networks: Incropera &
+DeWitt, Fundamentals of Heat and Mass Transfer, ch. 5 [mem].)
+
+For a constant current the system is linear, dx/dt = A x + b, and is advanced exactly with
+the matrix exponential of the augmented matrix [[A, b], [0, 0]] (Van Loan, IEEE Trans. AC
+23:395 (1978)), which also covers a singular or unstable A (thermal runaway).
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+
+import numpy as np
+from scipy.linalg import expm
+
+from controller.physics.wire import COPPER_ALPHA_PER_K, REFERENCE_TEMPERATURE_C
+
+
+@dataclass(frozen=True)
+class TwoNodeThermalModel:
+    """Parameters of the two-node model; state = (winding C, former C)."""
+
+    resistance_20c_ohm: float
+    winding_heat_capacity_j_per_k: float
+    winding_to_ambient_k_per_w: float
+    former_heat_capacity_j_per_k: float
+    winding_to_former_k_per_w: float
+    ambient_c: float
+    alpha_per_k: float = COPPER_ALPHA_PER_K
+    _cache: dict = field(default_factory=dict, init=False, repr=False, compare=False, hash=False)
+
+    def system(self, current_a: float) -> tuple[np.ndarray, np.ndarray]:
+        """A (2x2, 1/s) and b (K/s) of dx/dt = A x + b at a constant current."""
+        c_w, c_f = self.winding_heat_capacity_j_per_k, self.former_heat_capacity_j_per_k
+        g_a, g_f = 1.0 / self.winding_to_ambient_k_per_w, 1.0 / self.winding_to_former_k_per_w
+        p20 = current_a**2 * self.resistance_20c_ohm
+        a = np.array([[(p20 * self.alpha_per_k - g_a - g_f) / c_w, g_f / c_w],
+                      [g_f / c_f, -g_f / c_f]])
+        b = np.array([(p20 * (1.0 - REFERENCE_TEMPERATURE_C * self.alpha_per_k) + g_a * self.ambient_c) / c_w, 0.0])
+        return a, b
+
+    def _propagator(self, current_a: float, duration_s: float) -> np.ndarray:
+        """expm([[A, b], [0, 0]] t): maps (x0, 1) to (x(t), 1); cached per (current, duration)."""
+        key = (float(current_a), float(duration_s))
+        found = self._cache.get(key)
+        if found is None:
+            a, b = self.system(current_a)
+            augmented = np.zeros((3, 3))
+            augmented[:2, :2] = a
+            augmented[:2, 2] = b
+            found = expm(augmented * duration_s)
+            if len(self._cache) > 4096:
+                self._cache.clear()
+            self._cache[key] = found
+        return found
+
+    def initial_state(self, temperature_c: float) -> tuple[float, float]:
+        return (float(temperature_c), float(temperature_c))
+
+    def advance(self, state: tuple[float, ...], current_a: float, duration_s: float) -> tuple[float, float]:
+        if duration_s <= 0.0:
+            return (float(state[0]), float(state[1]))
+        phi = self._propagator(current_a, duration_s)
+        x = phi @ np.array([state[0], state[1], 1.0])
+        return (float(x[0]), float(x[1]))
+
+    def winding_c(self, state: tuple[float, ...]) -> float:
+        return state[0]
+
+    def steady_state_c(self, current_a: float) -> float:
+        """Winding temperature -A^-1 b in steady state, or +inf when the coil would run away."""
+        a, b = self.system(current_a)
+        if np.any(np.linalg.eigvals(a).real >= 0.0):
+            return float("inf")
+        return float(-np.linalg.solve(a, b)[0])
+
+    def step(self, temperature_c: float, current_a: float, duration_s: float) -> float:
+        """Winding temperature after duration_s from a uniform temperature_c (one-node call shape)."""
+        return self.advance(self.initial_state(temperature_c), current_a, duration_s)[0]
+
+    def power_w(self, current_a: float, temperature_c: float) -> float:
+        """Dissipation I^2 R(T) in the winding."""
+        return current_a**2 * self.resistance_20c_ohm * (
+            1.0 + self.alpha_per_k * (temperature_c - REFERENCE_TEMPERATURE_C))
