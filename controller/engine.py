@@ -64,6 +64,7 @@ class Engine:
         self.best_effort_sinks: list[Sink] = []
         self._stop = threading.Event()
         self._stop_reason = ""
+        self._shots_stored = 0  # ShotAcquired records the critical sinks accepted in this run
 
     def stop(self, reason: str = "stop requested by operator") -> None:
         self._stop_reason = reason
@@ -143,6 +144,7 @@ class Engine:
             self.supervisor.begin(current_profile(timeline.shots), self.rig)
         status, reason, done = EXIT_FAILED, "did not start", 0
         started = False
+        self._shots_stored = 0
         try:
             self._emit(RunStarted(run_id=run_id, started_at_s=self.clock.now(), sequence_name=timeline.sequence_name,
                                   sequence_kind=timeline.sequence_kind, shots_planned=len(timeline.shots),
@@ -164,7 +166,8 @@ class Engine:
         except CriticalSinkError as exc:
             status, reason = EXIT_FAILED, str(exc)
             if self.supervisor is not None:  # a store failure is a trip: safe at once, latched
-                record = self.supervisor.store_failure(run_id, str(exc), self.clock.now(), self.rig.make_safe())
+                failures = self.rig.make_safe()
+                record = self.supervisor.store_failure(run_id, str(exc), self.clock.now(), self._shots_stored, failures)
                 self._emit_best_effort(record)
                 status, reason = EXIT_INTERLOCK, f"interlock store_failure: {exc}"
         except Exception as exc:  # noqa: BLE001 - any driver error ends the run safely
@@ -209,5 +212,6 @@ class Engine:
             switch_off_sample=switch_off_sample, acquire_start_sample=acquire.start_sample,
             acquire_samples=acquire.n_samples, dead_time_s=(acquire.start_sample - last_edge) / sample_rate_hz,
             latency_samples=recording.latency_samples, bad=recording.overrun, notes=recording.notes))
+        self._shots_stored += 1
         recovery = shot.duration_s - shot.segment_start_s - shot.segment_samples / sample_rate_hz
         self._wait(run_id, recovery)

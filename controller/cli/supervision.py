@@ -24,7 +24,10 @@ def latch_for(loaded: LoadedRig, state_dir: str | None) -> TripLatch:
 
 def supervised_engine(loaded: LoadedRig, rig: Rig, clock: Clock, store: Any, latch: TripLatch,
                       skip: tuple[str, ...] = ()) -> Engine:
-    """An Engine sampling at the rig's control period, with a Supervisor on the rig's limits."""
+    """An Engine sampling at the rig's control period, a Supervisor on the rig's limits, the store as critical sink."""
     cfg = loaded.config
     supervisor = Supervisor(cfg, clock, latch=latch, store=store, skip=skip)
-    return Engine(rig, clock, control_period_s=cfg.supervisor.control_period_s, supervisor=supervisor)
+    engine = Engine(rig, clock, control_period_s=cfg.supervisor.control_period_s, supervisor=supervisor)
+    if store is not None:
+        engine.critical_sinks.append(store.write)
+    return engine

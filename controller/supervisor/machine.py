@@ -96,6 +96,7 @@ class Supervisor:
         self.r0_ohm, self.t0_c = cold_resistance(rig)
         self.tripped: InterlockTripped | None = None
         self.has_board = False
+        self._last_disk_free_mb: float | None = None
         self._reset(clock.now(), rig.coil.ambient_c, ())
 
     @property
@@ -226,6 +227,7 @@ class Supervisor:
             predicted_c=predicted_c, duty=self._duty(now),
             board_silent_s=(now - self._board_ok_at) if self.has_board else None,
             battery_v=readings.get("battery_v"), disk_free_mb=readings.get("disk_free_mb"))
+        self._last_disk_free_mb = sample.disk_free_mb
         derived = {"model_temperature_c": model_c, "predicted_temperature_c": predicted_c, "duty_cycle": sample.duty,
                    "commanded_current_a": self._commanded_a}
         if resistance_c is not None:
@@ -252,6 +254,8 @@ class Supervisor:
                           self.latch.path, exc)
         return record
 
-    def store_failure(self, run_id: str, message: str, at_s: float, safe_state_failures: Sequence[str] = ()
-                      ) -> InterlockTripped:
-        return self.trip(run_id, Finding("store_failure", message, {}), at_s, safe_state_failures)
+    def store_failure(self, run_id: str, message: str, at_s: float, shots_stored: int,
+                      safe_state_failures: Sequence[str] = ()) -> InterlockTripped:
+        values = {"shots_stored": float(shots_stored)} | (
+            {"disk_free_mb": self._last_disk_free_mb} if self._last_disk_free_mb is not None else {})
+        return self.trip(run_id, Finding("store_failure", message, values), at_s, safe_state_failures)

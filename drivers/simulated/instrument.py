@@ -44,8 +44,6 @@ class Faults:
     battery_sag_v_per_s: float = 0.5
     overshoot_at_s: float | None = None  # the supply delivers more than its setpoint
     overshoot_fraction: float = 0.6
-    compliance_drop_at_s: float | None = None  # the supply's voltage limit falls (sagging mains)
-    dropped_compliance_v: float = 5.0
     thermistor_offset_at_s: float | None = None  # the thermistor comes loose and reads low
     thermistor_offset_k: float = -30.0
     store_write_failure_at_s: float | None = None  # the database refuses to grow (simulated host)
@@ -81,6 +79,7 @@ class SimulatedInstrument:
         self.current_a = 0.0
         self.output_on = False
         self.supply_live = False  # the supply's output is on (whether or not the coil carries current)
+        self.switched_off_at_s: float | None = None  # when the coil circuit last opened
         self.compliance_v = rig.supervisor.supply_compliance_v
         self.thermal_state = self.thermal.initial_state(rig.coil.ambient_c)
         self.proton_density_per_m3 = water_proton_density_per_m3(sample.temperature_c)
@@ -148,6 +147,8 @@ class SimulatedInstrument:
     def switch_off(self) -> None:
         """The coil circuit opens (gate, relay or supply off): no current through the coil."""
         self.advance()
+        if self.output_on:
+            self.switched_off_at_s = self.clock.now()
         self.output_on = False
         if not self.supply_live:
             self.current_a = 0.0
@@ -171,10 +172,6 @@ class SimulatedInstrument:
         f = self.faults
         return self.coil_resistance_ohm() + f.rising_resistance_ohm_per_s * f.since_s("rising_resistance", t)
 
-    def supply_limit_v(self, at_s: float) -> float:
-        f = self.faults
-        return min(self.compliance_v, f.dropped_compliance_v) if f.active("compliance_drop", at_s) else self.compliance_v
-
     def coil_current_a(self, at_s: float | None = None) -> float:
         """Current through the winding: zero when off, open or bypassed; capped by the voltage limit."""
         t = self.clock.now() if at_s is None else at_s
@@ -182,7 +179,7 @@ class SimulatedInstrument:
         if not self.output_on or f.active("open_coil", t) or f.active("shorted_coil", t):
             return 0.0
         current = self.current_a * (1.0 + (f.overshoot_fraction if f.active("overshoot", t) else 0.0))
-        return min(current, self.supply_limit_v(t) / self.circuit_resistance_ohm(t))
+        return min(current, self.compliance_v / self.circuit_resistance_ohm(t))
 
     def mains_hz(self, at_s: float) -> float:
         """Mains fundamental wandering slowly (period ~17 min) by up to mains_drift_hz."""

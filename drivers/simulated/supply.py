@@ -3,7 +3,7 @@
 Faults (drivers.simulated.instrument.Faults) change what it does and reads back: an open
 coil reads no current at the voltage limit, a short reads the set current at almost no
 voltage, a stuck supply ignores setpoints and output_off, an overshoot delivers more than
-asked, a failing joint or a lowered voltage limit push it into compliance.
+asked, a failing joint or a hot coil can push it to its voltage limit (compliance).
 """
 
 from __future__ import annotations
@@ -56,7 +56,7 @@ class SimulatedSupply:
             return self._noisy(inst.current_a * SHORT_RESISTANCE_OHM)
         if inst.output_on and not inst.faults.active("open_coil", now):
             return self._noisy(inst.coil_current_a(now) * inst.circuit_resistance_ohm(now))
-        return self._noisy(inst.supply_limit_v(now))  # no load: the output sits at its voltage limit
+        return self._noisy(inst.compliance_v)  # no load: the output sits at its voltage limit
 
     def output_off(self) -> None:
         """Idempotent; never raises for 'already off'.  A stuck supply silently stays on."""
