@@ -148,7 +148,10 @@ class Store:
                 db.execute("BEGIN IMMEDIATE")
 
             def __exit__(self, exc_type: object, *rest: object) -> None:
-                db.execute("ROLLBACK" if exc_type else "COMMIT")
+                if exc_type is None:
+                    db.execute("COMMIT")
+                elif db.in_transaction:  # SQLite may have rolled back already (e.g. on SQLITE_FULL)
+                    db.execute("ROLLBACK")
 
         return _Tx()
 
