@@ -117,11 +117,21 @@ def _shot_at(timeline: Timeline, at_s: float) -> int:
     return timeline.shots[-1].index if timeline.shots else -1
 
 
+def planning_limit_c(rig: RigConfig) -> float:
+    """The highest temperature a plan may reach: the limit less the planning margin.
+
+    The margin leaves room for model error and readback noise, so that a run that passes
+    its check does not trip the supervisor's measured-temperature check at the limit.
+    """
+    return rig.limits.max_coil_temperature_c - rig.limits.planning_margin_k
+
+
 def check_temperature(timeline: Timeline, rig: RigConfig, start_c: float | None = None) -> list[Violation]:
     prediction = predict_run_temperature(timeline, rig, start_c)
-    if prediction.peak_c > rig.limits.max_coil_temperature_c:
+    if prediction.peak_c > planning_limit_c(rig):
         start = rig.coil.ambient_c if start_c is None else start_c
-        return [Violation("predicted coil temperature", prediction.peak_c, rig.limits.max_coil_temperature_c, "C",
+        return [Violation("predicted coil temperature", prediction.peak_c, planning_limit_c(rig), "C",
+                          f"{rig.limits.max_coil_temperature_c:g} C less a {rig.limits.planning_margin_k:g} K margin; "
                           f"{prediction.peak_at_s:.1f} s into the run, shot {_shot_at(timeline, prediction.peak_at_s)},"
                           f" from {start:.1f} C")]
     return []

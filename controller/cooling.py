@@ -2,7 +2,8 @@
 
 `plan_cooling_pauses(shots, rig)` walks the shots in order with the rig's thermal model and
 the duty-cycle window.  Before each shot it asks: would this shot, started now, push the
-predicted coil temperature above `limits.max_coil_temperature_c` or the duty over
+predicted coil temperature above the planning limit (`limits.max_coil_temperature_c` less
+`limits.planning_margin_k`) or the duty over
 `limits.max_duty_cycle`?  If so it finds the shortest pause (to PAUSE_RESOLUTION_S, by
 doubling then bisection) after which the shot fits, and records it.  A shot that does not
 fit even from a cold coil cannot be mended by waiting: it is reported as infeasible.
@@ -19,6 +20,7 @@ import math
 from dataclasses import dataclass
 from typing import Callable, Sequence
 
+from controller.checks import planning_limit_c
 from controller.config.schema import RigConfig
 from controller.physics.thermal import CoilThermal, ThermalState
 from controller.rigmodel import coil_thermal_model
@@ -57,8 +59,8 @@ def _fits(model: CoilThermal, state: ThermalState, shot: ShotPlan, start_s: floa
     window = rig.limits.duty_window_s
     recent = [iv for iv in history if iv[1] > start_s - window]
     duty, _ = max_window_duty(recent + on_intervals(steps), window)
-    if prediction.peak_c > rig.limits.max_coil_temperature_c:
-        return False, f"predicted {prediction.peak_c:.1f} C > {rig.limits.max_coil_temperature_c:g} C", \
+    if prediction.peak_c > planning_limit_c(rig):
+        return False, f"predicted {prediction.peak_c:.1f} C > {planning_limit_c(rig):g} C", \
             prediction.peak_c, prediction.final_state
     if duty > rig.limits.max_duty_cycle:
         return False, f"duty {duty:.2f} > {rig.limits.max_duty_cycle:g}", prediction.peak_c, prediction.final_state

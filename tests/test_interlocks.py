@@ -228,7 +228,7 @@ def test_warm_coil_is_refused_before_anything_is_energised(tmp_path: Path) -> No
     from controller.supervisor.machine import CoilTooWarmError
 
     rig = {"coil": {"heat_capacity_j_per_k": 30.0}}
-    with pytest.raises(CoilTooWarmError, match=r"coil is at 6\d\.\d C \(thermistor\).*over the 70 C limit.*cool about"):
+    with pytest.raises(CoilTooWarmError, match=r"coil is at 6\d\.\d C \(thermistor\).*over the 68 C planning limit.*cool about"):
         supervised_run(tmp_path, rig=rig, shots=2, current_a=3.0, warm_start_c=66.0)
 
 

@@ -73,6 +73,7 @@ class LimitsConfig:
     max_pulse_amplitude_v: float = field(1.0, gt=0.0, max=100.0)
     max_acquire_s: float = field(10.0, gt=0.0, max=600.0)
     duty_window_s: float = field(120.0, gt=0.0, max=86400.0, help="averaging window of the duty cycle")
+    planning_margin_k: float = field(2.0, min=0.0, max=50.0, help="plans stay this far below max_coil_temperature_c")
 
 
 @dataclass(frozen=True, kw_only=True)

@@ -78,6 +78,18 @@ class TwoNodeThermalModel:
     def winding_c(self, state: tuple[float, ...]) -> float:
         return state[0]
 
+    def winding_trajectory(self, state: tuple[float, ...], currents_a: np.ndarray, durations_s: np.ndarray) -> np.ndarray:
+        """Winding temperature after each (current, duration) step in turn; same as repeated
+        `advance`, with the 3x3 products done on plain floats for speed."""
+        w, f = float(state[0]), float(state[1])
+        out = np.empty(len(durations_s))
+        for k, (current, duration) in enumerate(zip(currents_a.tolist(), durations_s.tolist())):
+            if duration > 0.0:
+                (a, b, c), (d, e, g) = self._propagator(current, duration)[:2].tolist()
+                w, f = a * w + b * f + c, d * w + e * f + g
+            out[k] = w
+        return out
+
     def steady_state_c(self, current_a: float) -> float:
         """Winding temperature -A^-1 b in steady state, or +inf when the coil would run away."""
         a, b = self.system(current_a)

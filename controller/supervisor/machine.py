@@ -24,6 +24,7 @@ import logging
 import math
 from typing import Any, Sequence
 
+from controller.checks import planning_limit_c
 from controller.clock import Clock
 from controller.config.schema import RigConfig
 from controller.cooling import shortest_wait_s
@@ -143,7 +144,7 @@ class Supervisor:
         self._refuse_if_too_warm(steps, start_c, source)
 
     def _refuse_if_too_warm(self, steps: Sequence[CurrentStep], start_c: float, source: str) -> None:
-        limit = self.rig.limits.max_coil_temperature_c
+        limit = planning_limit_c(self.rig)
         if not steps or start_c <= self.rig.coil.ambient_c + 0.5:
             return
         peak = predict_temperature(self.model, steps, start_state=self._thermal).peak_c
@@ -152,7 +153,7 @@ class Supervisor:
         wait_s = shortest_wait_s(lambda t: predict_temperature(
             self.model, steps, start_state=self.model.advance(self._thermal, 0.0, t)).peak_c <= limit)
         raise CoilTooWarmError(f"the coil is at {start_c:.1f} C ({source}); this run would take it to {peak:.1f} C, "
-                               f"{peak - limit:.1f} K over the {limit:g} C limit; let it cool about "
+                               f"{peak - limit:.1f} K over the {limit:g} C planning limit; let it cool about "
                                f"{wait_s / 60:.1f} min first")
 
     # ---- commands (from CommandedSupply) ---------------------------------------------------
