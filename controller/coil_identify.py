@@ -123,7 +123,8 @@ def _model(nodes: int, x: np.ndarray, r20_ohm: float, ambient_c: float) -> CoilT
     return TwoNodeThermalModel(r20_ohm, p[0], p[1], p[2], p[3], ambient_c)
 
 
-def _fit(curve: HeatingCurve, r20_ohm: float, ambient_c: float, nodes: int, starts: list[np.ndarray]) -> ThermalFit:
+def _fit(curve: HeatingCurve, r20_ohm: float, ambient_c: float, nodes: int, starts: list[np.ndarray],
+         bounds: tuple[np.ndarray, np.ndarray] | None = None) -> ThermalFit:
     good = np.isfinite(curve.temperature_c)
     start_c = float(curve.temperature_c[good][0])
 
@@ -132,7 +133,8 @@ def _fit(curve: HeatingCurve, r20_ohm: float, ambient_c: float, nodes: int, star
 
     best = None
     for x0 in starts:
-        result = least_squares(residuals, x0, method="trf", x_scale=1.0, xtol=1e-10, ftol=1e-10, max_nfev=400)
+        result = least_squares(residuals, x0, method="trf", x_scale=1.0, xtol=1e-10, ftol=1e-10, max_nfev=400,
+                               bounds=bounds if bounds is not None else (-np.inf, np.inf))
         if best is None or result.cost < best.cost:
             best = result
     n = int(good.sum())
@@ -159,9 +161,16 @@ def fit_one_node(curve: HeatingCurve, r20_ohm: float, ambient_c: float) -> Therm
 
 
 def fit_two_node(curve: HeatingCurve, r20_ohm: float, ambient_c: float, one: ThermalFit) -> ThermalFit:
+    """C_w, R_wa, C_f, R_wf, each kept within a physical range around the one-node fit.
+
+    The bounds (C_f at least 1 % of C, R_wf at least 0.1 % of R_th...) keep the fit away
+    from the degenerate corners where a second node of no size makes the system stiff.
+    """
     c, r = one.parameters["heat_capacity_j_per_k"], one.parameters["thermal_resistance_k_per_w"]
-    starts = [np.log([c * fw, r, c * ff, r * fr]) for fw, ff, fr in ((0.3, 1.0, 0.3), (0.6, 0.5, 0.1), (0.2, 3.0, 1.0))]
-    return _fit(curve, r20_ohm, ambient_c, 2, starts)
+    scale = np.array([c, r, c, r])
+    bounds = (np.log(scale * [0.01, 0.1, 0.01, 0.001]), np.log(scale * [10.0, 10.0, 100.0, 100.0]))
+    starts = [np.log(scale * f) for f in ((0.3, 1.0, 1.0, 0.3), (0.6, 1.0, 0.5, 0.1), (0.2, 1.0, 3.0, 1.0))]
+    return _fit(curve, r20_ohm, ambient_c, 2, starts, bounds)
 
 
 def identify(curve: HeatingCurve, r20_ohm: float, ambient_c: float) -> tuple[ThermalFit, ThermalFit, ThermalFit]:

@@ -51,19 +51,47 @@ class TwoNodeThermalModel:
         return a, b
 
     def _propagator(self, current_a: float, duration_s: float) -> np.ndarray:
-        """expm([[A, b], [0, 0]] t): maps (x0, 1) to (x(t), 1); cached per (current, duration)."""
+        """The 3x3 matrix mapping (x0, 1) to (x(t), 1); cached per (current, duration).
+
+        With A's two real eigenvalues (an RC network has them) Sylvester's formula gives
+        e^(At) = (e^(l1 t)(A - l2) - e^(l2 t)(A - l1)) / (l1 - l2), and x(t) = e^(At) x0 +
+        (1 - e^(At)) x_inf with x_inf = -A^-1 b: fast and stable when the two time constants
+        are far apart.  Otherwise (equal or complex eigenvalues, singular A) the matrix
+        exponential of the augmented matrix is used.
+        """
         key = (float(current_a), float(duration_s))
         found = self._cache.get(key)
         if found is None:
-            a, b = self.system(current_a)
-            augmented = np.zeros((3, 3))
-            augmented[:2, :2] = a
-            augmented[:2, 2] = b
-            found = expm(augmented * duration_s)
+            found = self._sylvester(current_a, duration_s)
+            if found is None:
+                a, b = self.system(current_a)
+                augmented = np.zeros((3, 3))
+                augmented[:2, :2] = a
+                augmented[:2, 2] = b
+                found = expm(augmented * duration_s)
             if len(self._cache) > 4096:
                 self._cache.clear()
             self._cache[key] = found
         return found
+
+    def _sylvester(self, current_a: float, duration_s: float) -> np.ndarray | None:
+        a, b = self.system(current_a)
+        half_trace = 0.5 * (a[0, 0] + a[1, 1])
+        det = a[0, 0] * a[1, 1] - a[0, 1] * a[1, 0]
+        disc = half_trace**2 - det
+        if disc <= 0.0 or abs(det) < 1e-300:
+            return None
+        root = np.sqrt(disc)
+        l1, l2 = half_trace + root, half_trace - root
+        if root < 1e-9 * abs(half_trace):
+            return None
+        eye = np.eye(2)
+        e_at = (np.exp(l1 * duration_s) * (a - l2 * eye) - np.exp(l2 * duration_s) * (a - l1 * eye)) / (l1 - l2)
+        x_inf = -np.linalg.solve(a, b)
+        out = np.eye(3)
+        out[:2, :2] = e_at
+        out[:2, 2] = x_inf - e_at @ x_inf
+        return out
 
     def initial_state(self, temperature_c: float) -> tuple[float, float]:
         return (float(temperature_c), float(temperature_c))
