@@ -1,7 +1,7 @@
 """Small rig and sequence files for tests, written into a temporary folder.
 
-The simulated rig is the Heron-2 twin (configs/rigs/demo-sim.toml) made lighter (few
-isochromats and harmonics, short acquisitions) so that a supervised run takes well under a
+The simulated rig is the Heron-2 twin (configs/rigs/demo-sim.toml) made lighter (few mains
+harmonics, short acquisitions) so that a supervised run takes well under a
 second; `overrides` change single keys, e.g. {"limits": {"max_duty_cycle": 0.5}}.
 """
 
@@ -41,7 +41,7 @@ def write_rig(folder: Path, overrides: dict[str, Any] | None = None, name: str =
     data = tomllib.loads((CONFIGS / "rigs" / "demo-sim.toml").read_text())
     data["simulator"].update(site=str(CONFIGS / "sites" / "kestrel-flats.toml"),
                              sample=str(CONFIGS / "samples" / "tap-water-half-litre.toml"),
-                             isochromats=16, mains_harmonics=5)
+                             mains_harmonics=5)
     data = _merge(data, overrides or {})
     path = folder / name
     path.write_text(to_toml(data))

@@ -57,11 +57,16 @@ def test_duty_check_says_by_how_much(tmp_path: Path) -> None:
 
 
 def test_flyback_energy_check(tmp_path: Path) -> None:
-    # 1/2 L I^2 with L from Wheeler's multilayer formula for the Heron-2 coil (10.50 mH) at 3 A: 47 mJ [calc]
+    # 1/2 L I^2 at 3 A with L from Wheeler's multilayer formula for the Heron-2 winding [calc]
+    from controller.physics.coil import wheeler_inductance_h
+    from controller.rigmodel import coil_model
+
     loaded, timeline = compiled(tmp_path, {"limits": {"max_flyback_energy_j": 0.04}}, current_a=3.0)
+    coil = coil_model(loaded.config.coil)
+    inductance_h = wheeler_inductance_h(500, coil.mean_radius_m, 0.100, coil.winding_build_m)
     (violation,) = check_flyback_energy(timeline, loaded.config)
-    assert violation.value == pytest.approx(0.5 * 10.50e-3 * 9.0, rel=2e-3)
-    assert violation.limit == 0.04
+    assert violation.value == pytest.approx(0.5 * inductance_h * 3.0**2, rel=1e-9)
+    assert violation.limit == 0.04 and f"by {violation.value - 0.04:.4g} J" in str(violation)
 
 
 def test_configured_limit_must_stay_below_the_insulation_class(tmp_path: Path) -> None:
