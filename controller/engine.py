@@ -9,6 +9,10 @@ progress) are logged and ignored.
 Whatever happens - completion, stop request, Ctrl-C, a driver exception, a store failure -
 the `finally` makes every driver safe and a RunFinished record is emitted with the exit
 status and reason.
+
+With a Supervisor (controller/supervisor/machine.py) every status sample is also checked:
+a finding makes the rig safe at once, is latched and recorded (InterlockTripped), and ends
+the run with exit status "interlock"; a store failure is the `store_failure` trip.
 """
 
 from __future__ import annotations

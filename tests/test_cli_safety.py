@@ -105,3 +105,16 @@ def test_sigterm_makes_the_rig_safe_and_records_the_stop(tmp_path: Path, state_d
         assert con.execute("SELECT exit_status, reason FROM runs").fetchone() == (
             "stopped", "interrupted by operator (Ctrl-C / SIGTERM)")
     assert not any(state_dir.glob("latch-*.json"))  # an operator's stop is not a trip
+
+
+def test_real_rig_caution_names_the_energy_and_the_limits_in_force(tmp_path: Path) -> None:
+    from controller.cli.common import real_rig_caution
+    from controller.config.loader import load_rig
+    from controller.rigmodel import coil_model
+
+    cfg = load_rig(write_rig(tmp_path)).config
+    text = real_rig_caution(cfg, 2.0)
+    energy_j = 0.5 * coil_model(cfg.coil).inductance_h * 2.0**2  # 1/2 L I^2 [calc]
+    assert f"up to 2 A, {energy_j:.2g} J stored" in text
+    assert "Limits in force: 3 A, 70 C coil (insulation class A), duty 80% over 120 s, 2 J flyback" in text
+    assert "safety.md" in text and len(text.splitlines()) <= 5  # short
