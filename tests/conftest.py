@@ -42,3 +42,17 @@ def quiet_rig(loaded, **simulator_changes):
     quiet.update(simulator_changes)
     sim = dataclasses.replace(loaded.config.simulator, **quiet)
     return dataclasses.replace(loaded, config=dataclasses.replace(loaded.config, simulator=sim))
+
+
+@pytest.fixture(autouse=True, scope="session")
+def _private_latch_dir(tmp_path_factory: pytest.TempPathFactory):
+    """Trip latches written by tests go to a temporary folder, never the user's state folder."""
+    import os
+
+    old = os.environ.get("PRECESS_STATE_DIR")
+    os.environ["PRECESS_STATE_DIR"] = str(tmp_path_factory.mktemp("precess-state"))
+    yield
+    if old is None:
+        os.environ.pop("PRECESS_STATE_DIR", None)
+    else:
+        os.environ["PRECESS_STATE_DIR"] = old
