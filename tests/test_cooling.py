@@ -25,7 +25,7 @@ def compiled(tmp_path: Path, rig_overrides: dict | None = None, **sequence):
 
 
 def brute_force_duty(intervals: list[tuple[float, float]], window_s: float, step_s: float = 1e-3) -> float:
-    """Independent check: slide the window over a fine grid of on/off samples."""
+    """Independent check: move the window along a fine grid of on/off samples."""
     end = intervals[-1][1] + window_s
     t = np.arange(0.0, end, step_s)
     on = np.zeros(t.size)

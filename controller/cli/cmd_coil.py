@@ -20,7 +20,7 @@ from controller.coil_identify import HeatingCurve, identify, read_curve_csv, wri
 from controller.coil_record import EXEMPT_CHECKS, record_heating_curve
 from controller.errors import InputError
 from controller.supervisor.machine import InterlockTrip, Supervisor
-from controller.supervisor.measured import cold_resistance
+from controller.supervisor.measured import cold_resistance, expected_resistance_ohm
 
 EXIT_TRIPPED = 3
 
@@ -115,7 +115,7 @@ def run_identify(args: argparse.Namespace) -> int:
     loaded = load_rig(args.rig)
     curve = read_curve_csv(args.curve)
     r0, t0 = cold_resistance(loaded.config)
-    r20 = r0 * (1.0 + 0.0) if t0 == 20.0 else r0 * (234.45 + 20.0) / (234.45 + t0)
+    r20 = expected_resistance_ohm(20.0, r0, t0)
     ambient = args.ambient_c if args.ambient_c is not None else float(curve.temperature_c[np.isfinite(curve.temperature_c)][0])
     one, two, chosen = identify(curve, r20, ambient)
     summary = {"nodes": chosen.nodes, "parameters": chosen.parameters, "rms_k": chosen.rms_k,

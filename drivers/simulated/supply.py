@@ -35,28 +35,26 @@ class SimulatedSupply:
     def _noisy(self, value: float) -> float:
         return value * (1.0 + READBACK_NOISE_FRACTION * self.inst.rng.standard_normal())
 
-    def read_current(self) -> float:
+    def _readback(self) -> tuple[float, float]:
+        """(current, voltage) at the output now, before readback noise."""
         inst = self.inst
         inst.advance()
         now = inst.clock.now()
         if not inst.supply_live:
-            return 0.0
+            return 0.0, 0.0
         if inst.faults.active("shorted_coil", now):
-            return self._noisy(inst.current_a)
-        return self._noisy(inst.coil_current_a(now))
+            return inst.current_a, inst.current_a * SHORT_RESISTANCE_OHM
+        if inst.output_on and not inst.faults.active("open_coil", now):
+            current = inst.coil_current_a(now)
+            return current, current * inst.circuit_resistance_ohm(now)
+        return 0.0, inst.compliance_v  # no load: the output sits at its voltage limit
+
+    def read_current(self) -> float:
+        return self._noisy(self._readback()[0])
 
     def read_voltage(self) -> float:
         """V = I R(T) while the coil carries current (the resistance method reads coil temperature from it)."""
-        inst = self.inst
-        inst.advance()
-        now = inst.clock.now()
-        if not inst.supply_live:
-            return 0.0
-        if inst.faults.active("shorted_coil", now):
-            return self._noisy(inst.current_a * SHORT_RESISTANCE_OHM)
-        if inst.output_on and not inst.faults.active("open_coil", now):
-            return self._noisy(inst.coil_current_a(now) * inst.circuit_resistance_ohm(now))
-        return self._noisy(inst.compliance_v)  # no load: the output sits at its voltage limit
+        return self._noisy(self._readback()[1])
 
     def output_off(self) -> None:
         """Idempotent; never raises for 'already off'.  A stuck supply silently stays on."""
