@@ -9,6 +9,7 @@ from __future__ import annotations
 
 import hashlib
 import json
+import math
 import sqlite3
 from dataclasses import dataclass
 from pathlib import Path
@@ -17,9 +18,11 @@ from typing import Any, Iterator
 import numpy as np
 
 from controller.errors import StoreError
-from controller.records import InterlockTripped, Record, RunFinished, RunStarted, ShotAcquired, StatusSample
+from controller.records import (
+    EXIT_FAILED, InterlockTripped, Record, RunFinished, RunStarted, ShotAcquired, StatusSample,
+)
+from controller.store_migrations import MEASUREMENT_COLUMNS, SCHEMA_VERSION, SHOT_TIME_SQL, migrate
 
-SCHEMA_VERSION = 1
 SCHEMA = """
 CREATE TABLE IF NOT EXISTS meta (key TEXT PRIMARY KEY, value TEXT NOT NULL);
 CREATE TABLE IF NOT EXISTS runs (
@@ -43,6 +46,14 @@ CREATE TABLE IF NOT EXISTS results (run_id TEXT NOT NULL, created_at_s REAL NOT 
 CREATE INDEX IF NOT EXISTS results_run ON results(run_id);
 """
 STATUS_FLUSH_COUNT = 50
+
+
+def _number_or_none(value: Any) -> float | None:
+    """A result value as a float for SQLite (NaN is stored as NULL), or None if absent or not a number."""
+    try:
+        return None if value is None else float(value)
+    except (TypeError, ValueError):
+        return None
 
 
 @dataclass(frozen=True)
@@ -72,7 +83,7 @@ class Store:
             self.db.execute("PRAGMA synchronous=FULL")
             self.db.execute("PRAGMA foreign_keys=ON")
             self.db.executescript(SCHEMA)
-            self.db.execute("INSERT OR IGNORE INTO meta VALUES ('schema_version', ?)", (str(SCHEMA_VERSION),))
+            self.schema_version_before = migrate(self.db, str(self.path))
         except (sqlite3.Error, OSError) as exc:
             raise StoreError(f"{self.path}: cannot open the store ({exc})") from None
         self._pending_status: list[tuple[str, float, str]] = []
@@ -131,7 +142,67 @@ class Store:
             raise StoreError(f"{self.path}: write failed ({exc})") from None
 
     def add_result(self, run_id: str, kind: str, result: dict[str, Any], created_at_s: float) -> None:
-        self._tx("INSERT INTO results VALUES (?,?,?,?)", (run_id, created_at_s, kind, json.dumps(result)))
+        """Store a run-level result; one with a field also becomes a measurement (same transaction)."""
+        try:
+            with self._transaction():
+                self.db.execute("INSERT INTO results VALUES (?,?,?,?)",
+                                (run_id, created_at_s, kind, json.dumps(result)))
+                if result.get("field_nt") is not None:
+                    self._insert_measurement(run_id, result, created_at_s, None, "run")
+        except sqlite3.Error as exc:
+            raise StoreError(f"{self.path}: write failed ({exc})") from None
+
+    def replace_measurements(self, run_id: str, readings: list[tuple[dict[str, Any], tuple[int, int]]],
+                             created_at_s: float, source: str = "shots") -> None:
+        """Replace the run's readings of this source by new ones, each (result, (first, last good shot)).
+
+        One transaction: a reader sees the old set or the new one, never a mix.
+        """
+        try:
+            with self._transaction():
+                self.db.execute("DELETE FROM measurements WHERE run_id = ? AND source = ?", (run_id, source))
+                for result, shot_range in readings:
+                    self._insert_measurement(run_id, result, created_at_s, shot_range, source)
+        except sqlite3.Error as exc:
+            raise StoreError(f"{self.path}: write failed ({exc})") from None
+
+    def _insert_measurement(self, run_id: str, result: dict[str, Any], created_at_s: float,
+                            shot_indices: tuple[int, int] | None, source: str) -> None:
+        first, last = shot_indices if shot_indices is not None else (-1, 2**62)
+        at_s, lo, hi, n = self.db.execute(
+            f"SELECT AVG({SHOT_TIME_SQL}), MIN(shot_index), MAX(shot_index), COUNT(*) FROM shots "
+            "WHERE run_id = ? AND bad = 0 AND shot_index BETWEEN ? AND ?", (run_id, first, last)).fetchone()
+        if not n:
+            raise sqlite3.IntegrityError(f"run {run_id} has no good shot in {first}..{last} to measure")
+        values = [_number_or_none(result.get(k)) for k in MEASUREMENT_COLUMNS[5:13]]
+        self.db.execute(f"INSERT INTO measurements ({', '.join(MEASUREMENT_COLUMNS)}) "
+                        f"VALUES ({', '.join('?' * len(MEASUREMENT_COLUMNS))})",
+                        (run_id, at_s, lo, hi, n, *values, source, created_at_s))
+
+    # ---- resuming after a stop ---------------------------------------------------------
+    def last_shot(self, run_id: str) -> tuple[int, float] | None:
+        """(shot_index, started_at_s) of the run's last committed shot, or None if it has none."""
+        row = self.db.execute("SELECT shot_index, started_at_s FROM shots WHERE run_id = ? "
+                              "ORDER BY shot_index DESC LIMIT 1", (run_id,)).fetchone()
+        return (int(row[0]), float(row[1])) if row else None
+
+    def unfinished_runs(self) -> list[str]:
+        """Runs with no end record: the process stopped (killed, power cut) while they ran."""
+        cur = self.db.execute("SELECT run_id FROM runs WHERE exit_status IS NULL ORDER BY started_at_s")
+        return [r[0] for r in cur.fetchall()]
+
+    def close_unfinished_run(self, run_id: str, reason: str) -> None:
+        """End a run that has no end record: status failed, finished at its last shot (or start)."""
+        self._tx("UPDATE runs SET exit_status = ?, reason = ?, "
+                 "shots_completed = (SELECT COUNT(*) FROM shots s WHERE s.run_id = runs.run_id), "
+                 "finished_at_s = COALESCE((SELECT MAX(started_at_s) FROM shots s WHERE s.run_id = runs.run_id), "
+                 "started_at_s) WHERE run_id = ? AND exit_status IS NULL", (EXIT_FAILED, reason, run_id))
+
+    def record_gap(self, run_id: str | None, start_s: float, end_s: float, reason: str) -> None:
+        """Record an interval without data (e.g. from the last committed shot to a resume) and why."""
+        if end_s < start_s:
+            raise StoreError(f"{self.path}: gap ends ({end_s}) before it starts ({start_s})")
+        self._tx("INSERT INTO gaps VALUES (?,?,?,?)", (run_id, start_s, end_s, reason))
 
     def _tx(self, sql: str, params: tuple) -> None:
         try:
@@ -173,10 +244,12 @@ class Store:
         return {"run_id": row[0], "config": json.loads(row[1]), "sample_rate_hz": row[2], "sequence_name": row[3],
                 "exit_status": row[4]}
 
-    def shots(self, run_id: str) -> Iterator[StoredShot]:
+    def shots(self, run_id: str, from_s: float = -math.inf, to_s: float = math.inf) -> Iterator[StoredShot]:
+        """The run's shots with samples (compacted ones skipped), optionally only those started in [from_s, to_s]."""
         cur = self.db.execute("SELECT shot_index, started_at_s, sample_rate_hz, channel_names, n_channels, n_samples, "
                               "samples, sha256, switch_off_sample, acquire_start_sample, acquire_samples, dead_time_s, "
-                              "bad FROM shots WHERE run_id = ? ORDER BY shot_index", (run_id,))
+                              "bad FROM shots WHERE run_id = ? AND started_at_s BETWEEN ? AND ? ORDER BY shot_index",
+                              (run_id, from_s, to_s))
         for row in cur:
             (index, started, fs, names, n_ch, n_s, blob, digest, off, acq, acq_n, dead, bad) = row
             if blob is None:
