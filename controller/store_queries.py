@@ -79,6 +79,8 @@ def run_ids(store: Store, sel: Selection) -> list[str]:
 
 def measurements(store: Store, sel: Selection) -> dict[str, np.ndarray]:
     """The field readings in the selection, sorted by time: one array per column (NULL -> NaN)."""
+    if sel.run_id is not None:
+        store.run(sel.run_id)  # raises StoreError for an unknown run
     where, params = sel.where("at_s")
     cur = store.db.execute(
         f"SELECT {', '.join(MEASUREMENT_COLUMNS)} FROM measurements m WHERE {where} "

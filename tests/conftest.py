@@ -56,3 +56,13 @@ def _private_latch_dir(tmp_path_factory: pytest.TempPathFactory):
         os.environ.pop("PRECESS_STATE_DIR", None)
     else:
         os.environ["PRECESS_STATE_DIR"] = old
+
+
+@pytest.fixture(scope="session")
+def two_run_template(tmp_path_factory):
+    """A store file with two analysed simulated runs (build once; copy it before changing it)."""
+    from tests.store_data import two_run_store
+
+    path = tmp_path_factory.mktemp("stores") / "two-runs.sqlite"
+    run_a, run_b = two_run_store(path)
+    return path, run_a, run_b
