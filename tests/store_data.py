@@ -18,9 +18,9 @@ from controller.store import Store
 from tests.conftest import DEMO_RIG, EPOCH_NOON_UTC, FID_SUDDEN
 
 
-def simulated_run(store: Store, shots: int, start_epoch_s: float, analyse: bool = True) -> str:
-    """Run the demo FID sequence on the simulated rig into `store`; return the run id."""
-    loaded = load_rig(DEMO_RIG)
+def simulated_run(store: Store, shots: int, start_epoch_s: float, analyse: bool = True, loaded=None) -> str:
+    """Run the demo FID sequence on the simulated rig (or `loaded`) into `store`; return the run id."""
+    loaded = loaded or load_rig(DEMO_RIG)
     clock = VirtualClock(start_epoch_s=start_epoch_s)
     rig = build_rig(loaded, clock)
     spec = dataclasses.replace(load_sequence(FID_SUDDEN), shots=shots)

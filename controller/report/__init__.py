@@ -1,0 +1,1 @@
+"""Reports after a night: PNG plots and a short text summary from a store."""
