@@ -16,7 +16,6 @@ comment record.
 from __future__ import annotations
 
 import math
-import time
 from dataclasses import dataclass
 from typing import Any, TextIO
 
@@ -81,15 +80,15 @@ def column_header(iaga_code: str) -> str:
     return f"{'DATE':<11}{'TIME':<13}DOY   {names[:-4]}   |"
 
 
-def data_record(t_s: float, values: tuple[float, float, float, float]) -> str:
-    """One data record; non-finite values become 99999.00 (missing)."""
-    whole = math.floor(t_s)
-    millis = int(round((t_s - whole) * 1000))
-    if millis == 1000:
-        whole, millis = whole + 1, 0
-    tm = time.gmtime(whole)
-    stamp = time.strftime("%Y-%m-%d %H:%M:%S", tm) + f".{millis:03d} {tm.tm_yday:03d}   "
-    return stamp + "".join(f"{(v if math.isfinite(v) else MISSING):10.2f}" for v in values)
+def data_records(times_s: np.ndarray, values: np.ndarray) -> list[str]:
+    """Data records for epoch times (UTC) and values shaped (n, 4); non-finite values become 99999.00."""
+    stamps_ms = np.rint(np.asarray(times_s, dtype=float) * 1e3).astype(np.int64).astype("datetime64[ms]")
+    text = np.datetime_as_string(stamps_ms, unit="ms")  # YYYY-MM-DDThh:mm:ss.sss
+    days = stamps_ms.astype("datetime64[D]")
+    day_of_year = (days - days.astype("datetime64[Y]").astype("datetime64[D]")).astype(np.int64) + 1
+    v = np.where(np.isfinite(values), values, MISSING)
+    return [f"{t[:10]} {t[11:]} {d:03d}   {a:10.2f}{b:10.2f}{c:10.2f}{f:10.2f}"
+            for t, d, (a, b, c, f) in zip(text.tolist(), day_of_year.tolist(), v.tolist())]
 
 
 def grid_means(at_s: np.ndarray, field_nt: np.ndarray, interval_s: float, from_s: float,
@@ -140,8 +139,8 @@ def write_iaga2002(out: TextIO, header: StationHeader, grid_s: np.ndarray, field
     for text in comments:
         records += comment_records(text)
     records.append(column_header(header.iaga_code))
-    for t, f in zip(grid_s, field_nt):
-        records.append(data_record(float(t), (NOT_RECORDED, NOT_RECORDED, NOT_RECORDED, float(f))))
+    values = np.column_stack([np.full((len(grid_s), 3), NOT_RECORDED), np.asarray(field_nt, dtype=float)])
+    records += data_records(grid_s, values)
     for record in records:
         if len(record) != RECORD_WIDTH:
             raise AssertionError(f"IAGA-2002 record is {len(record)} characters, not 70: {record!r}")

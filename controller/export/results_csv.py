@@ -7,8 +7,6 @@ Columns carry their units in their names; an empty cell is a value that was not 
 from __future__ import annotations
 
 import csv
-import math
-import time
 from typing import TextIO
 
 import numpy as np
@@ -18,19 +16,19 @@ from controller.store_migrations import MEASUREMENT_COLUMNS
 COLUMNS = ("time_utc",) + MEASUREMENT_COLUMNS
 
 
-def iso_utc(t_s: float) -> str:
-    """`YYYY-MM-DDThh:mm:ss.sssZ` for epoch seconds."""
-    whole = math.floor(t_s)
-    millis = int(round((t_s - whole) * 1000))
-    if millis == 1000:
-        whole, millis = whole + 1, 0
-    return time.strftime("%Y-%m-%dT%H:%M:%S", time.gmtime(whole)) + f".{millis:03d}Z"
+def iso_utc(times_s: np.ndarray) -> list[str]:
+    """`YYYY-MM-DDThh:mm:ss.sssZ` for epoch seconds (rounded to the millisecond)."""
+    stamps_ms = np.rint(np.asarray(times_s, dtype=float) * 1e3).astype(np.int64).astype("datetime64[ms]")
+    return [t + "Z" for t in np.datetime_as_string(stamps_ms, unit="ms").tolist()]
 
 
-def _cell(value: object) -> str:
-    if isinstance(value, (float, np.floating)):
-        return "" if not math.isfinite(value) else repr(float(value))
-    return str(value)
+def _cells(column: np.ndarray) -> list:
+    """A column as Python values, NaN (and infinities) as empty cells."""
+    if column.dtype.kind != "f":
+        return column.tolist()
+    cells = column.astype(object)
+    cells[~np.isfinite(column)] = ""
+    return cells.tolist()
 
 
 def write_results_csv(out: TextIO, series: dict[str, np.ndarray]) -> int:
@@ -38,7 +36,5 @@ def write_results_csv(out: TextIO, series: dict[str, np.ndarray]) -> int:
     writer = csv.writer(out)
     writer.writerow(COLUMNS)
     n = len(series["at_s"])
-    columns = [series[name].tolist() for name in MEASUREMENT_COLUMNS]
-    for i, at_s in enumerate(series["at_s"].tolist()):
-        writer.writerow([iso_utc(at_s)] + [_cell(col[i]) for col in columns])
+    writer.writerows(zip(iso_utc(series["at_s"]), *(_cells(series[name]) for name in MEASUREMENT_COLUMNS)))
     return n
