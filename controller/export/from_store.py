@@ -26,6 +26,8 @@ from controller.physics.constants import gamma_hz_per_nt
 from controller.store import Store
 from controller.store_queries import Selection, measurements, run_ids, shots
 
+MAX_IAGA_RECORDS = 10_000_000
+
 
 @contextlib.contextmanager
 def atomic_output(out: str | Path) -> Iterator[Path]:
@@ -78,6 +80,9 @@ def export_iaga2002(store: Store, sel: Selection, out: str | Path, interval_s: f
         field_nt[~(series["field_sd_nt"] <= max_sd_nt)] = np.nan
     from_s = sel.from_s if sel.from_s is not None else float(at_s.min())
     to_s = sel.to_s if sel.to_s is not None else float(at_s.max())
+    if (to_s - from_s) / interval_s > MAX_IAGA_RECORDS:
+        raise InputError(f"{(to_s - from_s) / interval_s:.0f} records of {interval_s:g} s is more than "
+                         f"{MAX_IAGA_RECORDS}; choose a shorter --from/--to or a longer --interval-s")
     grid, means = grid_means(at_s, field_nt, interval_s, from_s, to_s)
     cadence = f"{float(np.median(np.diff(at_s))):.1f} second" if at_s.size > 1 else "single reading"
     rig_name = store.run(runs[0])["config"].get("rig", {}).get("name", "precess")
