@@ -3,8 +3,10 @@
 Every time plot shares one UTC time axis and shows the gaps (grey spans) and trips (red
 lines), so a pause or a trip lines up with what the field, T2*, SNR and coil temperature did.
 Field uncertainty bands are +/- 1 sd and +/- 2 sd of each reading; the lower field panel shows
-each reading minus a running median of RUNNING_MEDIAN_READINGS readings, where the bands show
-whether the scatter matches the stated uncertainty.
+each reading minus a local quadratic fit over LOCAL_FIT_READINGS readings (Savitzky & Golay,
+Anal. Chem. 36:1627, 1964; scipy.signal.savgol_filter), which follows the diurnal trend, so the
+bands show whether the scatter matches the stated uncertainty (the fit takes a little of the
+scatter with it: about sqrt(1 - h0), h0 the fit's central weight, ~0.9 for 15 readings).
 """
 
 from __future__ import annotations
@@ -17,11 +19,11 @@ matplotlib.use("Agg")
 import matplotlib.dates as mdates  # noqa: E402
 import matplotlib.pyplot as plt  # noqa: E402
 import numpy as np  # noqa: E402
-from scipy.ndimage import median_filter  # noqa: E402
+from scipy.signal import savgol_filter  # noqa: E402
 
 from controller.report.data import ReportData  # noqa: E402
 
-RUNNING_MEDIAN_READINGS = 15
+LOCAL_FIT_READINGS = 15
 DPI = 110
 BAND_COLOURS = ("#9ecae1", "#deebf7")
 
@@ -77,14 +79,15 @@ def _field(ax: plt.Axes, ax_res: plt.Axes | None, data: ReportData) -> None:
     if ax_res is not None:
         _events(ax_res, data)
         finite = np.isfinite(b)
-        size = min(RUNNING_MEDIAN_READINGS, int(finite.sum()))
+        window = min(LOCAL_FIT_READINGS, int(finite.sum()) - (1 - int(finite.sum()) % 2))  # odd, <= n
         residual = np.full_like(b, np.nan)
-        residual[finite] = b[finite] - median_filter(b[finite], size=size, mode="nearest")
+        if window >= 3:
+            residual[finite] = b[finite] - savgol_filter(b[finite], window, min(2, window - 1), mode="interp")
         ax_res.fill_between(t, -2 * sd, 2 * sd, color=BAND_COLOURS[1], lw=0)
         ax_res.fill_between(t, -sd, sd, color=BAND_COLOURS[0], lw=0)
         ax_res.plot(t, residual, ".", color="#08519c", ms=3)
         ax_res.axhline(0.0, color="0.3", lw=0.6)
-        ax_res.set_ylabel(f"minus running\nmedian ({size}) (nT)")
+        ax_res.set_ylabel(f"minus local fit\n({window} readings) (nT)")
 
 
 def _series(ax: plt.Axes, data: ReportData, key: str, sd_key: str | None, label: str, colour: str) -> None:
@@ -110,8 +113,13 @@ def _temperature(ax: plt.Axes, data: ReportData) -> None:
         return
     t_s, temperature_c = broken_at_gaps(data.gaps, data.temperature_at_s, data.temperature_c)
     ax.plot(utc_dates(t_s), temperature_c, color="#e6550d", lw=0.8, label="coil")
-    if data.temperature_limit_c is not None:
-        ax.axhline(data.temperature_limit_c, color="#d62728", ls="--", lw=0.8, label="limit")
+    limit = data.temperature_limit_c
+    low, high = float(np.nanmin(temperature_c)), float(np.nanmax(temperature_c))
+    if limit is not None and limit <= high + 2 * max(high - low, 5.0):
+        ax.axhline(limit, color="#d62728", ls="--", lw=0.8, label="limit")
+    elif limit is not None:
+        ax.text(0.01, 0.95, f"limit {limit:g} C (above the plotted range)", transform=ax.transAxes, va="top",
+                fontsize=8, color="#d62728")
     ax.set_ylabel("coil (C)")
     ax.legend(loc="best", fontsize=8)
 
@@ -121,6 +129,8 @@ def _events_strip(ax: plt.Axes, data: ReportData) -> None:
     for trip in data.trips:
         ax.text(utc_dates([trip["at_s"]])[0], 0.5, f" {trip['check_name']}", color="#d62728", fontsize=7,
                 va="center", rotation=90)
+    if not data.gaps and not data.trips:
+        _empty(ax, "no gaps, no trips")
     ax.set_yticks([])
     ax.set_ylabel("gaps (grey)\ntrips (red)")
 
