@@ -126,3 +126,16 @@ def test_run_without_site_needs_one_given(per_shot_store, tmp_path, capsys):
     site = str(CONFIGS / "sites" / "kestrel-flats.toml")
     assert main(["export", "--db", str(path), "--format", "iaga2002", "--out", str(out), "--site", site]) == 0
     assert " IAGA CODE              KFX" in out.read_text()
+
+
+def test_record_builders_keep_seventy_characters():
+    from controller.export.iaga2002 import comment_records, data_records, header_record
+
+    long_text = "word " * 40 + "x" * 100
+    assert all(len(r) == 70 and r.startswith(" # ") and r.endswith("|") for r in comment_records(long_text))
+    with pytest.raises(ValueError, match="longer than 45"):
+        header_record("Station Name", "x" * 46)
+    # 2024 is a leap year: 31 December is day 366 (Gregorian calendar)
+    t = dt.datetime(2024, 12, 31, 23, 59, 59, 500000, tzinfo=dt.timezone.utc).timestamp()
+    (record,) = data_records(np.array([t]), np.array([[88888.0, 88888.0, 88888.0, np.nan]]))
+    assert record == "2024-12-31 23:59:59.500 366     88888.00  88888.00  88888.00  99999.00"

@@ -131,3 +131,19 @@ def test_compact_command_reports_what_it_did(store_path, capsys):
     assert main(["db", "compact", "--db", str(path), "--older-than-days", "0", "--dry-run"]) == 0
     assert "shot(s)" in capsys.readouterr().out
     assert main(["db", "compact", "--db", str(path), "--older-than-days", "-1"]) == 4
+
+
+def test_check_json_and_remeasure_after_compaction(store_path, capsys):
+    import json
+
+    from controller.remeasure import remeasure
+
+    path, run_a, run_b = store_path
+    assert main(["db", "check", "--db", str(path), "--quick", "--json"]) == 0
+    report = json.loads(capsys.readouterr().out)
+    assert report["ok"] and not report["checksums_verified"] and [r["shots"] for r in report["runs"]] == [4, 3]
+    with Store(path) as store:
+        compact_samples(store, 0.0, EPOCH_NOON_UTC + DAY_S)
+        # nothing left to fit: the run-level readings stay as they were
+        assert remeasure(store, Selection(), 1, EPOCH_NOON_UTC + DAY_S) == []
+        assert len(measurements(store, Selection())["at_s"]) == 2
