@@ -6,11 +6,12 @@
 from __future__ import annotations
 
 from dataclasses import dataclass
+from typing import Callable
 
 from controller.config.schema import RigConfig
 from controller.physics.circuit import flyback_energy_j
 from controller.rigmodel import coil_model, coil_thermal_model
-from controller.sequences.timeline import Acquire, Polarise, Pulse, Timeline
+from controller.sequences.timeline import Acquire, EchoCentre, Polarise, Pulse, ShotPlan, SwitchOff, Timeline
 from controller.thermal_plan import (
     TemperaturePrediction, current_profile, max_window_duty, on_intervals, predict_temperature,
 )
@@ -30,8 +31,12 @@ class Violation:
     limit: float
     unit: str
     where: str
+    bound: str = "maximum"
 
     def __str__(self) -> str:
+        if self.bound == "minimum":
+            return (f"{self.check}: {self.value:.4g} {self.unit} is below the minimum {self.limit:.4g} {self.unit} "
+                    f"by {self.limit - self.value:.4g} {self.unit} ({self.where})")
         over = self.value - self.limit
         unit = f" {self.unit}" if self.unit else ""
         return (f"{self.check}: {self.value:.4g}{unit} exceeds the limit {self.limit:.4g}{unit} "
@@ -148,8 +153,72 @@ def check_insulation_margin(timeline: Timeline, rig: RigConfig) -> list[Violatio
     return []
 
 
+def _excitation_edges(shot: ShotPlan, sample_rate_hz: float) -> list[int]:
+    """Sample indices where the receiver is blinded: ends of pulses and of the switch-off ramp."""
+    edges = [p.start_sample + p.n_samples for p in shot.of_kind(Pulse)]
+    edges += [o.start_sample + int(round(o.ramp_s * sample_rate_hz)) for o in shot.of_kind(SwitchOff)]
+    return sorted(edges)
+
+
+def _shortest_gap(shot: ShotPlan, marks: list[int], sample_rate_hz: float) -> float | None:
+    """Shortest time from an excitation edge to the next of the given sample marks (None without pairs)."""
+    edges = _excitation_edges(shot, sample_rate_hz)
+    gaps = [m - max(e for e in edges if e <= m) for m in marks if any(e <= m for e in edges)]
+    return min(gaps) / sample_rate_hz if gaps else None
+
+
+def _gap_violation(timeline: Timeline, rig: RigConfig, marks: Callable[[ShotPlan], list[int]],
+                   label: str) -> list[Violation]:
+    """A violation when some mark lies less than min_dead_time_s after the excitation edge before it."""
+    worst, where = None, -1
+    for shot in timeline.shots:
+        gap = _shortest_gap(shot, marks(shot), timeline.sample_rate_hz)
+        if gap is not None and (worst is None or gap < worst):
+            worst, where = gap, shot.index
+    if worst is not None and worst < rig.limits.min_dead_time_s:
+        return [Violation(label, worst, rig.limits.min_dead_time_s, "s", f"shot {where}", bound="minimum")]
+    return []
+
+
+def check_receiver_dead_time(timeline: Timeline, rig: RigConfig) -> list[Violation]:
+    """Every acquisition opens at least min_dead_time_s after the last pulse or switch-off before it."""
+    return _gap_violation(timeline, rig, lambda shot: [a.start_sample for a in shot.of_kind(Acquire)],
+                          "receiver dead time")
+
+
+def check_echo_spacing(timeline: Timeline, rig: RigConfig) -> list[Violation]:
+    """Each echo centre lies at least min_dead_time_s after the end of the refocusing pulse before it."""
+    return _gap_violation(timeline, rig, lambda shot: [e.sample for e in shot.of_kind(EchoCentre)],
+                          "refocusing pulse end to echo")
+
+
+def check_transmit_duty(timeline: Timeline, rig: RigConfig) -> list[Violation]:
+    """Transmitter duty = pulse time / sample-locked segment length, worst shot."""
+    fs = timeline.sample_rate_hz
+    worst, where = 0.0, -1
+    for shot in timeline.shots:
+        on = sum(p.n_samples for p in shot.of_kind(Pulse))
+        duty = on / shot.segment_samples if shot.segment_samples else 0.0
+        if duty > worst:
+            worst, where = duty, shot.index
+    if worst > rig.limits.max_transmit_duty_cycle:
+        return [Violation("transmitter duty cycle", worst, rig.limits.max_transmit_duty_cycle, "",
+                          f"shot {where}, over its {timeline.shots[where].segment_samples / fs:.3g} s segment")]
+    return []
+
+
+def check_segment_buffer(timeline: Timeline, rig: RigConfig) -> list[Violation]:
+    """The sample-locked segment must fit the acquisition buffers (max_segment_samples)."""
+    longest = max(timeline.shots, key=lambda s: s.segment_samples, default=None)
+    if longest is not None and longest.segment_samples > rig.limits.max_segment_samples:
+        return [Violation("acquisition buffer", longest.segment_samples, rig.limits.max_segment_samples, "samples",
+                          f"shot {longest.index}, {longest.segment_samples / timeline.sample_rate_hz:.3g} s segment")]
+    return []
+
+
 ALL_CHECKS = (check_current, check_polarise_time, check_duty_cycle, check_flyback_energy,
-              check_pulse_amplitude, check_acquisition, check_temperature, check_insulation_margin)
+              check_pulse_amplitude, check_acquisition, check_temperature, check_insulation_margin,
+              check_receiver_dead_time, check_echo_spacing, check_transmit_duty, check_segment_buffer)
 
 
 def check_all(timeline: Timeline, rig: RigConfig, start_c: float | None = None) -> list[Violation]:

@@ -31,7 +31,7 @@ from controller.records import (
 )
 from controller.rig import Rig
 from controller.sequences.render import render_segment
-from controller.sequences.timeline import Acquire, Polarise, Pulse, ShotPlan, SwitchOff, Timeline
+from controller.sequences.timeline import Polarise, ShotPlan, SwitchOff, Timeline
 from controller.supervisor.machine import InterlockTrip, Supervisor
 from controller.thermal_plan import current_profile
 
@@ -202,19 +202,17 @@ class Engine:
         rig.supply.output_off()
         if rig.board is not None:
             rig.board.set_path("idle")
-        acquire = shot.of_kind(Acquire)[-1]
+        acquire_start, acquire_samples = shot.acquisition_span()
         offs = shot.of_kind(SwitchOff)
         switch_off_sample = offs[0].start_sample if offs else 0
-        pulses = shot.of_kind(Pulse)
-        last_edge = (pulses[-1].start_sample + pulses[-1].n_samples) if pulses else (
-            switch_off_sample + int(round(offs[0].ramp_s * sample_rate_hz)) if offs else 0)
+        last_edge = shot.time_zero_sample(sample_rate_hz)
         samples = recording.samples.copy()
         samples.setflags(write=False)
         self._emit(ShotAcquired(
             run_id=run_id, shot_index=shot.index, started_at_s=recording.started_at_s,
             sample_rate_hz=recording.sample_rate_hz, channel_names=recording.channel_names, samples=samples,
-            switch_off_sample=switch_off_sample, acquire_start_sample=acquire.start_sample,
-            acquire_samples=acquire.n_samples, dead_time_s=(acquire.start_sample - last_edge) / sample_rate_hz,
+            switch_off_sample=switch_off_sample, acquire_start_sample=acquire_start,
+            acquire_samples=acquire_samples, dead_time_s=(acquire_start - last_edge) / sample_rate_hz,
             latency_samples=recording.latency_samples, bad=recording.overrun, notes=recording.notes))
         self._shots_stored += 1
         recovery = shot.duration_s - shot.segment_start_s - shot.segment_samples / sample_rate_hz

@@ -264,5 +264,17 @@ class Store:
         cur = self.db.execute("SELECT kind, result_json FROM results WHERE run_id = ? ORDER BY created_at_s", (run_id,))
         return [{"kind": k, **json.loads(j)} for k, j in cur.fetchall()]
 
+    def latest_frequency_hz(self, rig_name: str | None = None) -> tuple[float, str] | None:
+        """The most recent measured Larmor frequency (a result holding frequency_hz) and its run id,
+        optionally only from runs of the rig named rig_name; None if there is none."""
+        sql = ("SELECT json_extract(s.result_json, '$.frequency_hz'), s.run_id FROM results s JOIN runs r "
+               "ON r.run_id = s.run_id WHERE json_extract(s.result_json, '$.frequency_hz') IS NOT NULL")
+        params: tuple = ()
+        if rig_name is not None:
+            sql += " AND json_extract(r.config_json, '$.rig.name') = ?"
+            params = (rig_name,)
+        row = self.db.execute(sql + " ORDER BY s.created_at_s DESC LIMIT 1", params).fetchone()
+        return (float(row[0]), row[1]) if row else None
+
     def integrity_ok(self) -> bool:
         return self.db.execute("PRAGMA integrity_check").fetchone()[0] == "ok"

@@ -4,12 +4,14 @@ from __future__ import annotations
 
 import argparse
 import dataclasses
+from pathlib import Path
 
 from controller.checks import check_all, planning_limit_c, predict_run_temperature
 from controller.cli.common import load_and_compile, load_rig, positive_int
 from controller.cooling import insert_cooling_pauses, plan_cooling_pauses
 from controller.rigmodel import coil_model
 from controller.sequences.describe import describe_timeline
+from controller.store import Store
 
 EXIT_VIOLATIONS = 5
 
@@ -22,12 +24,17 @@ def register(sub: argparse._SubParsersAction) -> None:
     p.add_argument("--start-c", type=float, help="coil temperature now (default the rig's ambient)")
     p.add_argument("--cooling-pauses", action="store_true",
                    help="show the cooling pauses that would keep the run within its limits, and check with them")
+    p.add_argument("--db", help="store whose last measured Larmor frequency sets the pulses (if it exists)")
     p.set_defaults(handler=run)
 
 
 def run(args: argparse.Namespace) -> int:
     loaded = load_rig(args.rig)
-    spec, timeline = load_and_compile(args.sequence, loaded, args.shots)
+    if args.db and Path(args.db).exists():
+        with Store(args.db) as store:
+            spec, timeline = load_and_compile(args.sequence, loaded, args.shots, store)
+    else:
+        spec, timeline = load_and_compile(args.sequence, loaded, args.shots)
     for line in describe_timeline(timeline):
         print(line)
     cfg = loaded.config

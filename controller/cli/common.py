@@ -9,15 +9,14 @@ import math
 from typing import Any
 
 from controller.clock import Clock, VirtualClock, WallClock
-from controller.config.loader import LoadedRig, load_rig, load_sequence, with_shots
+from controller.config.loader import LoadedRig, load_rig
 from controller.config.schema import RigConfig
-from controller.errors import InputError
 from controller.physics.circuit import flyback_energy_j
-from controller.physics.constants import gamma_hz_per_nt
 from controller.rig import Rig, build_rig
 from controller.rigmodel import coil_model
-from controller.sequences.compile import compile_sequence
+from controller.runner import predicted_larmor_hz, prepare_run
 from controller.sequences.timeline import Timeline
+from controller.store import Store
 
 SIMULATED_NOTE = "simulated rig: nothing is energised"
 REAL_RIG_CAUTION = ("CAUTION: this run energises a real coil (up to {current:g} A, {energy:.2g} J stored). "
@@ -56,21 +55,11 @@ def make_clock(loaded: LoadedRig, realtime: bool = False) -> Clock:
     return WallClock()
 
 
-def predicted_larmor_hz(loaded: LoadedRig) -> float | None:
-    if loaded.site is None:
-        return None
-    return loaded.site.field_nt * gamma_hz_per_nt("shielded")
-
-
-def load_and_compile(sequence_path: str, loaded: LoadedRig, shots: int | None) -> tuple[Any, Timeline]:
-    spec = load_sequence(sequence_path)
-    if shots is not None:
-        spec = with_shots(spec, shots)
-    try:
-        timeline = compile_sequence(spec, loaded.config.transceiver.sample_rate_hz, predicted_larmor_hz(loaded))
-    except ValueError as exc:
-        raise InputError(f"{sequence_path}: {exc}") from None
-    return spec, timeline
+def load_and_compile(sequence_path: str, loaded: LoadedRig, shots: int | None,
+                     store: Store | None = None) -> tuple[Any, Timeline]:
+    """The spec and its timeline; the store (if any) supplies the last measured Larmor frequency."""
+    prepared = prepare_run(sequence_path, loaded, shots=shots, store=store)
+    return prepared.spec, prepared.timeline
 
 
 def config_snapshot(loaded: LoadedRig, spec: Any, sequence_path: str) -> dict[str, Any]:
@@ -91,8 +80,13 @@ def to_json(obj: dict[str, Any]) -> str:
     def clean(v: Any) -> Any:
         if isinstance(v, float) and not math.isfinite(v):
             return None
+        if isinstance(v, dict):
+            return {k: clean(x) for k, x in v.items()}
+        if isinstance(v, (list, tuple)):
+            return [clean(x) for x in v]
         return v
-    return json.dumps({k: clean(v) for k, v in obj.items()}, indent=2, sort_keys=False)
+    return json.dumps(clean(obj), indent=2, sort_keys=False)
 
 
-__all__ = ["load_rig", "positive_int", "make_clock", "load_and_compile", "config_snapshot", "open_rig", "to_json"]
+__all__ = ["load_rig", "positive_int", "make_clock", "load_and_compile", "config_snapshot", "open_rig", "to_json",
+           "predicted_larmor_hz"]

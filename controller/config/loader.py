@@ -8,10 +8,16 @@ from pathlib import Path
 from typing import Any
 
 from controller.config.schema import FidSequence, RigConfig, SampleConfig, SiteConfig
+from controller.config.sequences import (
+    CpmgSequence, EchoSequence, NoiseSequence, NutationSequence, T1EarthSequence, T1PolariseSequence,
+)
 from controller.config.strict import build
 from controller.errors import ConfigError, InputError
 
-SEQUENCE_KINDS: dict[str, type] = {"fid": FidSequence}
+SEQUENCE_KINDS: dict[str, type] = {
+    "fid": FidSequence, "echo": EchoSequence, "cpmg": CpmgSequence, "t1-polarise": T1PolariseSequence,
+    "t1-earth": T1EarthSequence, "nutation": NutationSequence, "noise": NoiseSequence,
+}
 
 
 def read_toml(path: str | Path) -> dict[str, Any]:
@@ -41,6 +47,9 @@ def load_sample(path: str | Path) -> SampleConfig:
     sample = build(SampleConfig, read_toml(path), str(path))
     if sample.t2_s > sample.t1_s:
         raise ConfigError(str(path), "t2_s", f"{sample.t2_s!r} exceeds t1_s = {sample.t1_s}; allowed: T2 <= T1")
+    if sample.t1_earth_s is not None and sample.t2_s > sample.t1_earth_s:
+        raise ConfigError(str(path), "t2_s", f"{sample.t2_s!r} exceeds t1_earth_s = {sample.t1_earth_s}; "
+                          "allowed: T2 <= T1")
     return sample
 
 

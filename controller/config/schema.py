@@ -38,6 +38,8 @@ class SampleConfig:
     temperature_c: float = field(20.0, min=0.0, max=40.0)
     t1_s: float = field(2.5, gt=0.0, max=20.0, help="longitudinal relaxation time")
     t2_s: float = field(2.0, gt=0.0, max=20.0, help="transverse relaxation time (T2 <= T1)")
+    t1_earth_s: float | None = field(None, gt=0.0, max=20.0,
+                                     help="T1 in the Earth's field when it differs from t1_s (omit: same)")
 
 
 @dataclass(frozen=True, kw_only=True)
@@ -74,6 +76,9 @@ class LimitsConfig:
     max_acquire_s: float = field(10.0, gt=0.0, max=600.0)
     duty_window_s: float = field(120.0, gt=0.0, max=86400.0, help="averaging window of the duty cycle")
     planning_margin_k: float = field(2.0, min=0.0, max=50.0, help="plans stay this far below max_coil_temperature_c")
+    min_dead_time_s: float = field(0.005, min=0.0, max=1.0, help="receiver recovery after a pulse or switch-off")
+    max_transmit_duty_cycle: float = field(0.3, gt=0.0, max=1.0, help="fraction of a shot the transmitter is on")
+    max_segment_samples: int = field(8_388_608, min=1, help="longest sample-locked segment the buffers hold")
 
 
 @dataclass(frozen=True, kw_only=True)
@@ -163,13 +168,21 @@ class SwitchOffSpec:
 
 
 @dataclass(frozen=True, kw_only=True)
-class PulseSpec:
+class RfPulseSpec:
+    """A transmit pulse: its length (or flip angle from the calibration), amplitude, frequency and phase."""
+
+    duration_s: float | None = field(None, gt=0.0, max=1.0, help="pulse length; or give flip_deg")
+    flip_deg: float | None = field(None, gt=0.0, max=720.0, help="flip angle from the pulse calibration")
+    amplitude_v: float = field(gt=0.0, max=100.0, help="transmit amplitude at the output")
+    frequency_hz: float | None = field(None, gt=0.0, max=10000.0,
+                                       help="omit to use the last measured or predicted Larmor frequency")
+    phase_deg: float = field(0.0, min=-360.0, max=360.0)
+
+
+@dataclass(frozen=True, kw_only=True)
+class PulseSpec(RfPulseSpec):
     """An excitation pulse at the Larmor frequency after switch-off."""
 
-    duration_s: float = field(gt=0.0, max=1.0)
-    amplitude_v: float = field(gt=0.0, max=100.0, help="transmit amplitude at the output")
-    frequency_hz: float | None = field(None, gt=0.0, max=10000.0, help="omit to use the site's predicted field")
-    phase_deg: float = field(0.0, min=-360.0, max=360.0)
     delay_s: float = field(0.01, min=0.0, max=600.0, help="after the end of the switch-off ramp")
 
 
@@ -177,6 +190,21 @@ class PulseSpec:
 class ReceiveSpec:
     dead_time_s: float = field(0.01, min=0.0, max=1.0, help="after switch-off or pulse end, before acquisition")
     acquire_s: float = field(1.0, gt=0.0, max=600.0)
+
+
+@dataclass(frozen=True, kw_only=True)
+class PhaseCycleSpec:
+    """Phase offsets added shot by shot (step i of the cycle for the i-th shot of a point).
+
+    Each list has one entry per step, or a single entry used in every step.
+    """
+
+    excite_deg: tuple[float, ...] = field((0.0,), min=-360.0, max=360.0, min_items=1)
+    refocus_deg: tuple[float, ...] = field((0.0,), min=-360.0, max=360.0, min_items=1)
+    receiver_deg: tuple[float, ...] = field((0.0,), min=-360.0, max=360.0, min_items=1)
+
+
+FREQUENCY_SOURCES = ("last", "predicted")
 
 
 @dataclass(frozen=True, kw_only=True)
@@ -192,3 +220,7 @@ class FidSequence:
     pulse: PulseSpec | None = field(None)
     receive: ReceiveSpec = field(default_factory=ReceiveSpec)
     description: str = field("")
+    phase_cycle: PhaseCycleSpec = field(default_factory=PhaseCycleSpec)
+    frequency_from: str = field("last", choices=FREQUENCY_SOURCES,
+                                help="pulse frequency when not given: last measurement in the store, or the site's field")
+    calibration: str = field("", help="pulse calibration file, relative to this file (needed for flip_deg)")

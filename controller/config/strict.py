@@ -5,7 +5,10 @@ Every dataclass field may carry metadata:
 * ``min`` / ``max``: inclusive numeric bounds;
 * ``gt``: exclusive lower bound;
 * ``choices``: the allowed values;
+* ``min_items``: the least number of entries of a list;
 * ``help``: a few words on what the value is (shown in errors).
+
+Bounds on a list field apply to each of its entries.
 
 Unknown keys are rejected: a typo is the most common configuration error, and a silently
 ignored ``curent_a`` would leave a coil at its default current.
@@ -90,6 +93,14 @@ def _convert(value: Any, tp: Any, file: str, key: str) -> Any:
 
 
 def _check_bounds(value: Any, meta: dict[str, Any], file: str, key: str) -> None:
+    if isinstance(value, tuple):
+        least = meta.get("min_items")
+        if least is not None and len(value) < least:
+            raise ConfigError(file, key, f"has {len(value)} entr{'y' if len(value) == 1 else 'ies'}; "
+                              f"allowed: at least {least}" + (f" ({meta['help']})" if "help" in meta else ""))
+        for i, item in enumerate(value):
+            _check_bounds(item, {k: v for k, v in meta.items() if k != "min_items"}, file, f"{key}[{i}]")
+        return
     help_text = f" ({meta['help']})" if "help" in meta else ""
     if "choices" in meta and value not in meta["choices"]:
         allowed = ", ".join(repr(c) for c in meta["choices"])

@@ -8,6 +8,10 @@ whole number of sample periods.  Two parts exist in every shot:
 * the sample-locked segment, from just before switch-off to the end of acquisition, played
   and recorded on one converter clock.  Its events carry sample indices relative to the
   segment's first sample.
+
+A shot of a series carries its point (``series_index``, ``series_value``) and its step in the
+phase cycle; marks such as ``EchoCentre`` tell the analysis where to look and are ignored by
+the engine.
 """
 
 from __future__ import annotations
@@ -59,6 +63,16 @@ class Acquire:
 
 
 @dataclass(frozen=True)
+class EchoCentre:
+    """Where echo `index` is expected, echo_time_s after the excitation (a mark; nothing is played)."""
+
+    start_s: float
+    sample: int
+    index: int = 0
+    echo_time_s: float = 0.0
+
+
+@dataclass(frozen=True)
 class Recover:
     """Coil off; wait before the next shot."""
 
@@ -66,7 +80,7 @@ class Recover:
     duration_s: float
 
 
-Event = Polarise | SwitchOff | Pulse | Acquire | Recover
+Event = Polarise | SwitchOff | Pulse | Acquire | EchoCentre | Recover
 
 
 @dataclass(frozen=True)
@@ -78,9 +92,32 @@ class ShotPlan:
     segment_start_s: float
     segment_samples: int
     duration_s: float
+    series_index: int = 0
+    series_value: float | None = None
+    cycle_step: int = 0
 
     def of_kind(self, kind: type) -> tuple:
         return tuple(e for e in self.events if isinstance(e, kind))
+
+    def acquisition_span(self) -> tuple[int, int]:
+        """(first sample, sample count) from the first acquisition's start to the last one's end."""
+        windows = self.of_kind(Acquire)
+        if not windows:
+            return 0, 0
+        start = windows[0].start_sample
+        return start, windows[-1].start_sample + windows[-1].n_samples - start
+
+    def time_zero_sample(self, sample_rate_hz: float) -> int:
+        """The last excitation edge before the first acquisition: end of the last pulse before it,
+        else end of the switch-off ramp, else 0.  The dead time is measured from here."""
+        first, _ = self.acquisition_span()
+        ends = [p.start_sample + p.n_samples for p in self.of_kind(Pulse) if p.start_sample + p.n_samples <= first]
+        if ends:
+            return max(ends)
+        offs = self.of_kind(SwitchOff)
+        if offs:
+            return offs[0].start_sample + int(round(offs[0].ramp_s * sample_rate_hz))
+        return 0
 
 
 @dataclass(frozen=True)
@@ -92,6 +129,9 @@ class Timeline:
     sample_rate_hz: float
     shots: tuple[ShotPlan, ...]
     notes: tuple[str, ...] = field(default=())
+    larmor_hz: float | None = None
+    series_name: str = ""
+    series_unit: str = ""
 
     @property
     def duration_s(self) -> float:

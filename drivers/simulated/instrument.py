@@ -111,6 +111,15 @@ class SimulatedInstrument:
                                         GAMMA_SHIELDED_HZ_PER_T * 1e-9)
 
     @property
+    def t1_earth_s(self) -> float:
+        """T1 with the coil off (in the Earth's field); the sample's t1_earth_s, else its t1_s."""
+        return self.sample.t1_earth_s if self.sample.t1_earth_s is not None else self.sample.t1_s
+
+    def t1_at_current_s(self, current_a: float) -> float:
+        """T1 at the field of the coil current: t1_s while polarising, t1_earth_s with the coil off."""
+        return self.sample.t1_s if current_a > 0 else self.t1_earth_s
+
+    @property
     def t2star_s(self) -> float:
         """1/T2* = 1/T2 + 1/T2'."""
         return t2star_s(self.sample.t2_s, self.site.gradient_nt_per_m, sample_size_m(self.sample.volume_l),
@@ -134,15 +143,28 @@ class SimulatedInstrument:
         current = self.coil_current_a(self._last_s)
         self.thermal_state = self.thermal.advance(self.thermal_state, current, dt)
         m_eq = self.equilibrium_magnetisation_a_per_m(current)
-        e1 = math.exp(-dt / self.sample.t1_s)
+        e1 = math.exp(-dt / self.t1_at_current_s(current))
         self.magnetisation_a_per_m = m_eq + (self.magnetisation_a_per_m - m_eq) * e1
         self._last_s = now
 
+    def field_direction(self, current_a: float) -> np.ndarray:
+        """Unit vector of Be z + Bp(current) n, n the coil axis in the x-z plane."""
+        a = math.radians(self.rig.coil.axis_to_field_deg)
+        bp = self.coil.field_per_amp_t * current_a
+        vector = np.array([bp * math.sin(a), 0.0, self.earth_field_nt() * 1e-9 + bp * math.cos(a)])
+        return vector / np.linalg.norm(vector)
+
     def set_current(self, current_a: float) -> None:
+        """Step the current.  The magnetisation keeps only its part along the new field: a sudden
+        turn of the field leaves the rest precessing about it, dephasing within T2 (not tracked)."""
         self.advance()
+        before = self.coil_current_a()
         self.current_a = current_a
         self.output_on = current_a > 0
         self.supply_live = current_a > 0
+        after = self.coil_current_a()
+        if before != after:
+            self.magnetisation_a_per_m *= float(self.field_direction(before) @ self.field_direction(after))
 
     def switch_off(self) -> None:
         """The coil circuit opens (gate, relay or supply off): no current through the coil."""

@@ -17,6 +17,7 @@ import math
 import numpy as np
 
 MAX_DIRECTION_STEP_RAD = 2e-3
+ENVELOPE_ROWS = 512  # time steps of the envelope recurrence held at once
 
 
 def rotate(vectors: np.ndarray, axes: np.ndarray, angles: np.ndarray) -> np.ndarray:
@@ -40,11 +41,14 @@ def rotation_matrices(axes: np.ndarray, angles: np.ndarray) -> np.ndarray:
 
 
 def compose(matrices: np.ndarray) -> np.ndarray:
-    """Product R_N ... R_2 R_1 of rotations applied in order R_1 first, by pairwise reduction."""
+    """Product R_N ... R_2 R_1 of rotations (N, ..., 3, 3) applied in order R_1 first, by pairwise reduction.
+
+    Extra axes between the first and the last two are batch axes (one product each).
+    """
     r = matrices
     while r.shape[0] > 1:
         if r.shape[0] % 2:
-            r = np.concatenate([r, np.eye(3)[None]], axis=0)
+            r = np.concatenate([r, np.broadcast_to(np.eye(3), r.shape[1:])[None]], axis=0)
         r = np.matmul(r[1::2], r[0::2])
     return r[0]
 
@@ -122,6 +126,26 @@ def lorentzian_isochromats(half_width_rad_per_s: float, span_s: float, width_fac
     return offsets, weights
 
 
+def pulse_propagators(
+    b1_blocks_t: np.ndarray, block_durations_s: np.ndarray, offsets_rad_per_s: np.ndarray, gamma_rad_per_s_t: float,
+) -> np.ndarray:
+    """Rotation (K, 3, 3) of each isochromat through a pulse given as B1 blocks.
+
+    Block j holds the rotating-frame field b1_j (complex, T) for block_durations_s[j]; an
+    isochromat of offset dw_k turns about B_eff = (b1x, b1y, dw_k / gamma) by -gamma |B_eff| dt_j
+    (exact for a field constant over the block).  The blocks' rotations are composed in order.
+    """
+    b1 = np.asarray(b1_blocks_t, dtype=complex)[:, None]
+    k = offsets_rad_per_s[None, :]
+    w = np.stack(np.broadcast_arrays(gamma_rad_per_s_t * b1.real, gamma_rad_per_s_t * b1.imag, k), axis=-1)
+    mag = np.linalg.norm(w, axis=-1)
+    axes = w / np.where(mag > 0, mag, 1.0)[..., None]
+    axes[mag == 0] = (0.0, 0.0, 1.0)
+    angles = -mag * np.asarray(block_durations_s)[:, None]
+    rotations = rotation_matrices(axes.reshape(-1, 3), angles.reshape(-1)).reshape(*angles.shape, 3, 3)
+    return compose(rotations)
+
+
 def pulse_rotation(
     vectors: np.ndarray, b1_complex_t: complex, offsets_rad_per_s: np.ndarray, gamma_rad_per_s_t: float,
     duration_s: float,
@@ -133,6 +157,14 @@ def pulse_rotation(
     mag = np.linalg.norm(w, axis=1)
     safe = np.where(mag > 0, mag, 1.0)
     return rotate(vectors, w / safe[:, None], -mag * duration_s)
+
+
+def rotate_about_z(vectors: np.ndarray, angle_rad: float) -> np.ndarray:
+    """Turn vectors (K, 3) about z by angle_rad (right-handed): m = Mx + i My -> m exp(i angle)."""
+    if angle_rad == 0.0:
+        return vectors
+    m = (vectors[:, 0] + 1j * vectors[:, 1]) * np.exp(1j * angle_rad)
+    return np.stack([m.real, m.imag, vectors[:, 2]], axis=1)
 
 
 def free_evolution(
@@ -150,7 +182,28 @@ def free_evolution(
 def transverse_envelope(
     vectors: np.ndarray, offsets_rad_per_s: np.ndarray, weights: np.ndarray, times_s: np.ndarray, t2_s: float
 ) -> np.ndarray:
-    """Weighted rotating-frame transverse magnetisation sum_k w_k m_k exp(-i dw_k t) exp(-t/T2) at times_s."""
+    """Weighted rotating-frame transverse magnetisation sum_k w_k m_k exp(-i dw_k t) exp(-t/T2) at times_s.
+
+    On a uniform grid t_j = t_0 + j dt the phase factors come from the recurrence
+    exp(-i dw t_j) = exp(-i dw t_(j-1)) exp(-i dw dt) (one complex multiplication per entry),
+    ENVELOPE_ROWS times at a time so that memory stays bounded.
+    """
     m = (vectors[:, 0] + 1j * vectors[:, 1]) * weights
-    phase = np.exp(-1j * np.outer(times_s, offsets_rad_per_s))
-    return (phase @ m) * np.exp(-times_s / t2_s)
+    t = np.asarray(times_s, dtype=float)
+    steps = np.diff(t)
+    if t.size <= 2 or not np.allclose(steps, steps[0], rtol=1e-9, atol=0.0):
+        phase = np.exp(-1j * np.outer(t, offsets_rad_per_s))
+        return (phase @ m) * np.exp(-t / t2_s)
+    step = np.exp(-1j * offsets_rad_per_s * steps[0])
+    current = m * np.exp(-1j * offsets_rad_per_s * t[0])
+    out = np.empty(t.size, dtype=complex)
+    out[0] = current.sum()
+    for start in range(1, t.size, ENVELOPE_ROWS):
+        rows = min(ENVELOPE_ROWS, t.size - start)
+        factors = np.empty((rows, m.size), dtype=complex)
+        factors[:] = step
+        factors[0] *= current
+        np.cumprod(factors, axis=0, out=factors)
+        out[start:start + rows] = factors.sum(axis=1)
+        current = factors[-1]
+    return out * np.exp(-t / t2_s)
