@@ -10,6 +10,7 @@ import pytest
 
 from controller.clock import VirtualClock
 from controller.cli.main import main
+from controller.cli.supervision import latch_for, supervised_engine
 from controller.config.schedule import load_schedule
 from controller.errors import ConfigError
 from controller.rig import build_rig
@@ -17,6 +18,11 @@ from controller.schedule.execute import ScheduleRunner
 from controller.schedule.plan import in_windows, next_slot_s, upcoming_slots
 from controller.store import Store
 from sequence_rigs import DEMO_RIG, ROOT, rig
+
+
+def engine_for(loaded, built_rig, clock, store):
+    """The supervised engine the CLI uses, with the rig's trip latch in the tests' private state folder."""
+    return supervised_engine(loaded, built_rig, clock, store, latch_for(loaded, None))
 
 
 def utc(text: str) -> float:
@@ -83,7 +89,7 @@ def test_a_schedule_runs_follows_the_larmor_frequency_and_stores_every_run(tmp_p
     loaded = rig()
     clock = VirtualClock(start_epoch_s=utc("2031-06-01T05:50:00"))
     with Store(tmp_path / "s.sqlite") as store:
-        runner = ScheduleRunner(schedule, loaded, build_rig(loaded, clock), store, clock)
+        runner = ScheduleRunner(schedule, loaded, engine_for(loaded, build_rig(loaded, clock), clock, store), store, clock)
         reports = []
         runner.on_report = reports.append
         outcome = runner.run()
@@ -111,7 +117,7 @@ def test_a_failed_run_ends_the_schedule_unless_told_to_continue(tmp_path):
         built = build_rig(loaded, clock)
         built.instrument.faults.transceiver_error = True
         with Store(tmp_path / f"{policy}.sqlite") as store:
-            outcome = ScheduleRunner(schedule, loaded, built, store, clock).run()
+            outcome = ScheduleRunner(schedule, loaded, engine_for(loaded, built, clock, store), store, clock).run()
         assert outcome.status == status and outcome.state.runs_done == expected_runs
         assert outcome.state.failures == expected_runs
         assert built.instrument.output_on is False
@@ -135,3 +141,27 @@ def test_the_example_schedule_loads():
     s = load_schedule(ROOT / "configs" / "schedules" / "kestrel-flats-evening.toml")
     assert s.config.count == 12 and s.windows_min == ((17 * 60, 23 * 60 + 30),)
     assert json.dumps(s.config.windows)
+
+
+def test_a_trip_mid_schedule_ends_it_and_stays_latched(tmp_path):
+    # the supervisor trips the first run (the coil circuit opens); the schedule stops there and the
+    # latch stays set for the operator: a scheduler never clears a trip
+    import dataclasses
+
+    schedule = load_schedule(write(tmp_path, 'every_s = 60.0\ncount = 3\n'))
+    loaded = rig()
+    loaded = dataclasses.replace(loaded, config=dataclasses.replace(loaded.config, name="heron-2 schedule trip test"))
+    clock = VirtualClock(start_epoch_s=utc("2031-06-01T05:50:00"))
+    built = build_rig(loaded, clock)
+    built.instrument.faults.open_coil_at_s = utc("2031-06-01T05:50:00") + 0.5  # during the first run
+    latch = latch_for(loaded, tmp_path / "state")
+    with Store(tmp_path / "trip.sqlite") as store:
+        engine = supervised_engine(loaded, built, clock, store, latch)
+        outcome = ScheduleRunner(schedule, loaded, engine, store, clock).run()
+        assert outcome.status == "interlock" and outcome.state.runs_done == 1
+        assert [r["exit_status"] for r in store.runs()] == ["interlock"]
+    assert latch.latched and built.instrument.output_on is False
+    with Store(tmp_path / "trip.sqlite") as store:  # a new schedule on the tripped rig does not start
+        again = ScheduleRunner(schedule, loaded, supervised_engine(loaded, build_rig(loaded, clock), clock, store, latch),
+                               store, clock).run()
+    assert again.status == "interlock" and again.state.runs_done == 0 and latch.latched

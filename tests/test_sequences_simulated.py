@@ -123,7 +123,11 @@ def test_cpmg_keeps_its_echoes_with_a_pulse_angle_error_while_cp_decays():
         trains[variant] = np.abs(result["echo_amplitudes_v"]) * np.exp(t / loaded.sample.t2_s)  # T2 decay removed
     cpmg, cp = trains["cpmg"] / trains["cpmg"][0], trains["cp"] / trains["cp"][0]
     assert cpmg.min() > 0.85, cpmg
-    assert cp[3:8].mean() < 0.5 * cpmg[3:8].mean(), cp
+    # in CP the error adds up: after n pulses M is turned n * 18 deg out of the transverse plane, so the
+    # echoes fall as |cos(n * 18 deg)| towards nothing at n = 5 (an offset spread blurs it)
+    expected = np.abs(np.cos(np.radians(18.0) * np.arange(1, 6))) / np.cos(np.radians(18.0))
+    assert np.all(np.abs(cp[:4] - expected[:4]) < 0.15), cp
+    assert cp[2:6].min() < 0.3 < 0.85 < cpmg[2:6].min(), cp
 
 
 def test_noise_survey_gives_the_input_noise_density_and_the_mains():

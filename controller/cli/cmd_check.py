@@ -4,14 +4,12 @@ from __future__ import annotations
 
 import argparse
 import dataclasses
-from pathlib import Path
 
 from controller.checks import check_all, planning_limit_c, predict_run_temperature
-from controller.cli.common import load_and_compile, load_rig, positive_int
+from controller.cli.common import existing_store, load_and_compile, load_rig, positive_int
 from controller.cooling import insert_cooling_pauses, plan_cooling_pauses
 from controller.rigmodel import coil_model
 from controller.sequences.describe import describe_timeline
-from controller.store import Store
 
 EXIT_VIOLATIONS = 5
 
@@ -30,11 +28,8 @@ def register(sub: argparse._SubParsersAction) -> None:
 
 def run(args: argparse.Namespace) -> int:
     loaded = load_rig(args.rig)
-    if args.db and Path(args.db).exists():
-        with Store(args.db) as store:
-            spec, timeline = load_and_compile(args.sequence, loaded, args.shots, store)
-    else:
-        spec, timeline = load_and_compile(args.sequence, loaded, args.shots)
+    with existing_store(args.db) as store:
+        spec, timeline = load_and_compile(args.sequence, loaded, args.shots, store)
     for line in describe_timeline(timeline):
         print(line)
     cfg = loaded.config

@@ -11,7 +11,7 @@ from typing import Any
 from controller.checks import check_all
 from controller.cli.cmd_runs import DEFAULT_DB
 from controller.cli.common import (
-    SIMULATED_NOTE, config_snapshot, load_rig, make_clock, open_rig, positive_int, real_rig_caution, to_json,
+    SIMULATED_NOTE, config_snapshot, existing_store, load_rig, make_clock, open_rig, positive_int, real_rig_caution, to_json,
 )
 from controller.cli.progress import Progress
 from controller.cli.supervision import add_state_dir_argument, latch_for, supervised_engine
@@ -46,15 +46,16 @@ def run(args: argparse.Namespace) -> int:
     loaded = load_rig(args.rig)
     latch = latch_for(loaded, args.state_dir)
     latch.require_clear()
+    with existing_store(args.db) as lookup:  # the last measured Larmor frequency, if any
+        prepared = prepare_run(args.sequence, loaded, shots=args.shots, store=lookup)
+    if args.cooling_pauses:
+        prepared = dataclasses.replace(prepared, timeline=_with_cooling_pauses(prepared.timeline, loaded))
+    violations = check_all(prepared.timeline, loaded.config)
+    if violations:
+        for v in violations:
+            print(f"precess: refused: {v}", file=sys.stderr)
+        return EXIT_VIOLATIONS
     with Store(args.db) as store:
-        prepared = prepare_run(args.sequence, loaded, shots=args.shots, store=store)
-        if args.cooling_pauses:
-            prepared = dataclasses.replace(prepared, timeline=_with_cooling_pauses(prepared.timeline, loaded))
-        violations = check_all(prepared.timeline, loaded.config)
-        if violations:
-            for v in violations:
-                print(f"precess: refused: {v}", file=sys.stderr)
-            return EXIT_VIOLATIONS
         out = sys.stderr if args.json else sys.stdout
         clock = make_clock(loaded, args.realtime)
         rig = open_rig(loaded, clock)

@@ -7,8 +7,9 @@ import sys
 
 from controller.checks import check_all
 from controller.cli.cmd_runs import DEFAULT_DB
-from controller.cli.common import SIMULATED_NOTE, config_snapshot, load_rig, make_clock, open_rig, positive_int
+from controller.cli.common import SIMULATED_NOTE, config_snapshot, existing_store, load_rig, make_clock, open_rig, positive_int
 from controller.cli.progress import Progress
+from controller.cli.supervision import add_state_dir_argument, latch_for, supervised_engine
 from controller.config.schedule import load_schedule
 from controller.errors import InputError
 from controller.records import EXIT_COMPLETED
@@ -29,6 +30,7 @@ def register(sub: argparse._SubParsersAction) -> None:
     p.add_argument("--plan", type=positive_int, metavar="N", help="only list the next N start times and exit")
     p.add_argument("--quiet", action="store_true", help="one line per run, no per-shot progress")
     p.add_argument("--realtime", action="store_true", help="pace a simulated rig in real time")
+    add_state_dir_argument(p)
     p.set_defaults(handler=run)
 
 
@@ -51,13 +53,16 @@ def run(args: argparse.Namespace) -> int:
         for i, slot in enumerate(slots, 1):
             print(f"{i:4d}  {utc_text(slot)}")
         return 0
+    latch = latch_for(loaded, args.state_dir)
+    latch.require_clear()
+    with existing_store(args.db) as lookup:
+        prepared = prepare_run(schedule.sequence_path, loaded, store=lookup)
+    violations = check_all(prepared.timeline, loaded.config)
+    if violations:
+        for v in violations:
+            print(f"precess: refused: {v}", file=sys.stderr)
+        return EXIT_VIOLATIONS
     with Store(args.db) as store:
-        prepared = prepare_run(schedule.sequence_path, loaded, store=store)
-        violations = check_all(prepared.timeline, loaded.config)
-        if violations:
-            for v in violations:
-                print(f"precess: refused: {v}", file=sys.stderr)
-            return EXIT_VIOLATIONS
         rig = open_rig(loaded, clock)
         cfg = schedule.config
         print(SIMULATED_NOTE if rig.simulated else "CAUTION: this schedule energises a real coil again and again "
@@ -67,13 +72,14 @@ def run(args: argparse.Namespace) -> int:
         windows = f", windows {', '.join(cfg.windows)} ({cfg.timezone})" if cfg.windows else ""
         print(f"schedule {cfg.name!r}: {prepared.spec.name} every {cfg.every_s:g} s, {limit}{until}{windows}; "
               f"store {args.db}")
-        runner = ScheduleRunner(schedule, loaded, rig, store, clock,
+        runner = ScheduleRunner(schedule, loaded, supervised_engine(loaded, rig, clock, store, latch), store, clock,
                                 snapshot=lambda p: config_snapshot(loaded, p.spec, schedule.sequence_path))
         if not args.quiet:
             runner.run_sinks = lambda p: [Progress(sys.stdout, p.timeline, p.spec, indent="    ")]
         runner.on_report = lambda report: print(_report_line(report), flush=True)
         runner.on_wait = lambda slot: print(f"waiting for {utc_text(slot)}", flush=True) if not args.quiet else None
+        runner.on_skip = lambda slot, reason: print(f"slot {utc_text(slot)} skipped: {reason}", flush=True)
         outcome = runner.run()
     print(f"schedule {cfg.name!r} {outcome.status}: {outcome.reason} ({outcome.state.runs_done} run(s), "
-          f"{outcome.state.failures} failed)")
+          f"{outcome.state.failures} failed, {outcome.state.skipped} slot(s) skipped)")
     return 0 if outcome.status == EXIT_COMPLETED else EXIT_SCHEDULE_ENDED_EARLY

@@ -3,10 +3,12 @@
 from __future__ import annotations
 
 import argparse
+import contextlib
 import dataclasses
 import json
 import math
-from typing import Any
+from pathlib import Path
+from typing import Any, Iterator
 
 from controller.clock import Clock, VirtualClock, WallClock
 from controller.config.loader import LoadedRig, load_rig
@@ -55,6 +57,16 @@ def make_clock(loaded: LoadedRig, realtime: bool = False) -> Clock:
     return WallClock()
 
 
+@contextlib.contextmanager
+def existing_store(path: str | None) -> Iterator[Store | None]:
+    """The store at path if that file exists (for looking up the last measurement), else None; creates nothing."""
+    if not path or not Path(path).exists():
+        yield None
+        return
+    with Store(path) as store:
+        yield store
+
+
 def load_and_compile(sequence_path: str, loaded: LoadedRig, shots: int | None,
                      store: Store | None = None) -> tuple[Any, Timeline]:
     """The spec and its timeline; the store (if any) supplies the last measured Larmor frequency."""
@@ -88,5 +100,5 @@ def to_json(obj: dict[str, Any]) -> str:
     return json.dumps(clean(obj), indent=2, sort_keys=False)
 
 
-__all__ = ["load_rig", "positive_int", "make_clock", "load_and_compile", "config_snapshot", "open_rig", "to_json",
+__all__ = ["existing_store", "load_rig", "positive_int", "make_clock", "load_and_compile", "config_snapshot", "open_rig", "to_json",
            "predicted_larmor_hz"]

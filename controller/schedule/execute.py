@@ -5,9 +5,11 @@ last slot, the frequency followed) lives in ScheduleState, and every run's confi
 snapshot in the store names the schedule, its file and the run's slot and occurrence, so
 crash recovery can rebuild the state from the store.
 
-The scheduler never clears an interlock: a run that ends with an interlock trip (or is
-stopped by the operator) ends the schedule; a failed run ends it too unless on_failure is
-"continue".
+The engine comes from the caller (the CLI gives the supervised engine with the rig's trip
+latch).  The scheduler never clears an interlock: a latched trip, or a run that ends with an
+interlock trip or is stopped by the operator, ends the schedule; a failed run ends it too
+unless on_failure is "continue".  A slot at which the supervisor finds the coil still too warm
+for the run is skipped (counted in `skipped`), and the next slot is tried.
 """
 
 from __future__ import annotations
@@ -24,7 +26,8 @@ from controller.config.schedule import Schedule
 from controller.engine import Engine
 from controller.errors import PrecessError
 from controller.records import EXIT_COMPLETED, EXIT_FAILED, EXIT_INTERLOCK, EXIT_STOPPED, Record
-from controller.rig import Rig
+from controller.supervisor.latch import TripLatchedError
+from controller.supervisor.machine import CoilTooWarmError
 from controller.runner import PreparedRun, finish_run, prepare_run, with_larmor
 from controller.schedule.plan import next_slot_s
 from controller.store import Store
@@ -40,6 +43,7 @@ class ScheduleState:
     larmor_hz: float | None = None
     larmor_source: str = ""
     run_ids: list[str] = field(default_factory=list)
+    skipped: int = 0
 
 
 @dataclass(frozen=True)
@@ -66,21 +70,21 @@ class RunReport:
 class ScheduleRunner:
     """Runs a schedule on one rig in the foreground; stop() is thread-safe."""
 
-    def __init__(self, schedule: Schedule, loaded: LoadedRig, rig: Rig, store: Store, clock: Clock,
+    def __init__(self, schedule: Schedule, loaded: LoadedRig, engine: Engine, store: Store, clock: Clock,
                  state: ScheduleState | None = None,
                  snapshot: Callable[[PreparedRun], dict[str, Any]] | None = None) -> None:
+        """engine must already write to the store (a critical sink); the runner adds progress sinks per run."""
         self.schedule = schedule
         self.loaded = loaded
-        self.rig = rig
+        self.engine = engine
         self.store = store
         self.clock = clock
         self.state = state or ScheduleState()
         self.snapshot = snapshot or (lambda prepared: {})
-        self.engine = Engine(rig, clock)
-        self.engine.critical_sinks.append(store.write)
         self.run_sinks: Callable[[PreparedRun], list[Callable[[Record], None]]] = lambda prepared: []
         self.on_report: Callable[[RunReport], None] = lambda report: None
         self.on_wait: Callable[[float], None] = lambda slot_s: None
+        self.on_skip: Callable[[float, str], None] = lambda slot_s, reason: None
         self._stop = threading.Event()
         self._stop_reason = ""
 
@@ -132,7 +136,15 @@ class ScheduleRunner:
             self.engine.best_effort_sinks[:] = self.run_sinks(prepared)
             if self._stop.is_set():
                 return ScheduleOutcome(EXIT_STOPPED, self._stop_reason, s)
-            outcome = self.engine.run(prepared.timeline, snapshot)
+            try:
+                outcome = self.engine.run(prepared.timeline, snapshot)
+            except CoilTooWarmError as exc:
+                s.skipped += 1
+                s.last_slot_s = slot
+                self.on_skip(slot, str(exc))
+                continue
+            except TripLatchedError as exc:
+                return ScheduleOutcome(EXIT_INTERLOCK, str(exc), s)
             s.runs_done += 1
             s.last_slot_s = slot
             s.run_ids.append(outcome.run_id)
