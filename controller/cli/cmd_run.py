@@ -8,10 +8,10 @@ import sys
 from pathlib import Path
 from typing import Any
 
-from controller.checks import check_all
 from controller.cli.cmd_runs import DEFAULT_DB
 from controller.cli.common import (
-    SIMULATED_NOTE, config_snapshot, existing_store, load_rig, make_clock, open_rig, positive_int, real_rig_caution, to_json,
+    SIMULATED_NOTE, config_snapshot, existing_store, load_rig, make_clock, open_rig, positive_int, real_rig_caution,
+    refused, to_json,
 )
 from controller.cli.progress import Progress
 from controller.cli.supervision import add_state_dir_argument, latch_for, supervised_engine
@@ -50,10 +50,7 @@ def run(args: argparse.Namespace) -> int:
         prepared = prepare_run(args.sequence, loaded, shots=args.shots, store=lookup)
     if args.cooling_pauses:
         prepared = dataclasses.replace(prepared, timeline=_with_cooling_pauses(prepared.timeline, loaded))
-    violations = check_all(prepared.timeline, loaded.config)
-    if violations:
-        for v in violations:
-            print(f"precess: refused: {v}", file=sys.stderr)
+    if refused(prepared.timeline, loaded.config):
         return EXIT_VIOLATIONS
     with Store(args.db) as store:
         out = sys.stderr if args.json else sys.stdout

@@ -5,9 +5,10 @@ from __future__ import annotations
 import argparse
 import sys
 
-from controller.checks import check_all
 from controller.cli.cmd_runs import DEFAULT_DB
-from controller.cli.common import SIMULATED_NOTE, config_snapshot, existing_store, load_rig, make_clock, open_rig, positive_int
+from controller.cli.common import (
+    SIMULATED_NOTE, config_snapshot, existing_store, load_rig, make_clock, open_rig, positive_int, refused,
+)
 from controller.cli.progress import Progress
 from controller.cli.supervision import add_state_dir_argument, latch_for, supervised_engine
 from controller.config.schedule import load_schedule
@@ -57,10 +58,7 @@ def run(args: argparse.Namespace) -> int:
     latch.require_clear()
     with existing_store(args.db) as lookup:
         prepared = prepare_run(schedule.sequence_path, loaded, store=lookup)
-    violations = check_all(prepared.timeline, loaded.config)
-    if violations:
-        for v in violations:
-            print(f"precess: refused: {v}", file=sys.stderr)
+    if refused(prepared.timeline, loaded.config):
         return EXIT_VIOLATIONS
     with Store(args.db) as store:
         rig = open_rig(loaded, clock)

@@ -7,6 +7,7 @@ import contextlib
 import dataclasses
 import json
 import math
+import sys
 from pathlib import Path
 from typing import Any, Iterator
 
@@ -67,6 +68,16 @@ def existing_store(path: str | None) -> Iterator[Store | None]:
         yield store
 
 
+def refused(timeline: Timeline, cfg: RigConfig) -> bool:
+    """Print every limit violation as `precess: refused: ...` on stderr; True if there was any."""
+    from controller.checks import check_all
+
+    violations = check_all(timeline, cfg)
+    for v in violations:
+        print(f"precess: refused: {v}", file=sys.stderr)
+    return bool(violations)
+
+
 def load_and_compile(sequence_path: str, loaded: LoadedRig, shots: int | None,
                      store: Store | None = None) -> tuple[Any, Timeline]:
     """The spec and its timeline; the store (if any) supplies the last measured Larmor frequency."""
@@ -100,5 +111,5 @@ def to_json(obj: dict[str, Any]) -> str:
     return json.dumps(clean(obj), indent=2, sort_keys=False)
 
 
-__all__ = ["existing_store", "load_rig", "positive_int", "make_clock", "load_and_compile", "config_snapshot", "open_rig", "to_json",
+__all__ = ["existing_store", "refused", "load_rig", "positive_int", "make_clock", "load_and_compile", "config_snapshot", "open_rig", "to_json",
            "predicted_larmor_hz"]
