@@ -89,6 +89,20 @@ def test_nutation_recovers_the_90_degree_pulse_and_b1():
     assert math.isclose(result["b1_rot_t_per_v"], math.pi / (2 * GAMMA_SHIELDED_RAD_PER_S_T * result["pulse_90_s"] * 0.5))
 
 
+def test_nutation_by_amplitude_finds_the_amplitude_of_a_90_degree_pulse():
+    # theta = gamma B1_rot t with B1_rot proportional to the drive: at a fixed length t the 90 deg drive is
+    # a90 = 0.5 V * t90(0.5 V) / t
+    loaded = rig()
+    length_s = 0.003
+    expected_v = 0.5 * true_t90_s(loaded, 0.5) / length_s
+    result, _ = run_and_analyse({
+        "name": "t", "kind": "nutation", "shots": 2, "polarise": POLARISE, "switch_off": ADIABATIC,
+        "pulse": {"duration_s": length_s}, "pulse_amplitudes_v": [0.15, 0.3, 0.5, 0.7, 1.0, 1.3],
+        "phase_cycle": TWO_STEP}, loaded)
+    assert result["headline"]["quantity"] == "90 deg pulse amplitude"
+    assert within(result["amplitude_90_v"], expected_v, 0.02), (result["amplitude_90_v"], expected_v)
+
+
 def test_t2star_from_fid_and_t2_from_cpmg_differ_by_the_offset_spread():
     # source: 1/T2* = 1/T2 + 1/T2', the inhomogeneous part refocused by echoes (Hahn 1950; Carr & Purcell,
     # Phys. Rev. 94:630 (1954)); here 1/T2' = pi (gamma/2pi) G L from the site's gradient (REFERENCE.md)
@@ -146,6 +160,7 @@ def test_noise_survey_gives_the_input_noise_density_and_the_mains():
     # the simulator's odd harmonics have amplitude A/h at the input
     third = next(x for x in result["mains_lines_strongest"] if x["harmonic"] == 3)
     assert within(third["amplitude_v"], loaded.config.simulator.mains_amplitude_uv * 1e-6 / 3, 0.05)
+    assert len(result["spectrum_frequencies_hz"]) == len(result["spectrum_nv_per_rthz"]) > 50
 
 
 @pytest.mark.parametrize("kind", ["fid-sudden", "fid-pulse"])

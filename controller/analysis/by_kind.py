@@ -184,7 +184,11 @@ def analyse_noise(timeline: Timeline, spec: Any, shots: list[ShotLike], ctx: Ana
                                        min(fs / 2 * 0.9, max(band[1] + 200.0, 1000.0)))
     strongest = sorted(lines, key=lambda x: -x["amplitude_v"])[:10]
     in_band = [x for x in lines if band[0] <= x["frequency_hz"] <= band[1]]
+    f = spectrum.frequencies_hz
+    shown = (f >= band[0]) & (f <= band[1])
     r: dict[str, Any] = {"records": len(records), "band_hz": list(band), "density_nv_per_rthz": density * 1e9,
+                         "spectrum_frequencies_hz": f[shown].tolist(),
+                         "spectrum_nv_per_rthz": (np.sqrt(spectrum.psd_v2_per_hz[shown]) * 1e9).tolist(),
                          "density_sd_nv_per_rthz": density_sd * 1e9, "density_bins": bins,
                          "mains_fundamental_hz": fundamental,
                          "mains_lines_strongest": [{**x, "amplitude_nv": x["amplitude_v"] * 1e9} for x in strongest],
