@@ -65,9 +65,9 @@ def overload_end(record: np.ndarray, first_sample: int, full_scale: float | None
         clipped = np.flatnonzero(window >= CLIP_FRACTION * full_scale)
     else:
         top = float(window.max())
-        at_top = window >= top * (1 - 1e-9) if top > 0 else np.zeros(window.size, bool)
-        runs = np.convolve(at_top.astype(int), np.ones(3, int), mode="valid") == 3
-        clipped = np.flatnonzero(at_top) if runs.any() else np.zeros(0, int)
+        at_top = np.flatnonzero(window >= top * (1 - 1e-9)) if top > 0 else np.zeros(0, int)
+        in_run = at_top.size >= 3 and bool(np.any(at_top[2:] - at_top[:-2] == 2))
+        clipped = at_top if in_run else np.zeros(0, int)
     if clipped.size == 0:
         return None
     return first_sample + int(clipped[-1]) + 1 + int(OVERLOAD_RECOVERY_S * sample_rate_hz)

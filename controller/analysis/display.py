@@ -49,20 +49,32 @@ class DisplayData:
     shots: int
 
 
-def cleaned_spectrum(p: "PreparedShot", mains: MainsFit | None) -> np.ndarray:
-    """The shot's spectrum without the whole mains model and, in the band, what the references explain."""
-    all_bins = np.arange(p.spectrum.size)
-    clean = p.spectrum - (mains_spectrum(all_bins, p.n_samples, p.sample_rate_hz, mains) if mains else 0)
+def cleaned_spectrum(p: "PreparedShot", mains: MainsFit | None, fid_model: np.ndarray, margin_hz: float) -> np.ndarray:
+    """The shot's spectrum without the mains model and what the references explain, over the band +/- margin.
+
+    The references' transfer functions are estimated on the spectrum minus the fitted FID
+    (fid_model, the FID's DFT on every bin), so the FID cannot leak into them.  Bins
+    outside the band +/- margin are returned as recorded.
+    """
+    df = p.sample_rate_hz / p.n_samples
+    lo = max(1, int((p.band_bins[0] * df - margin_hz) / df))
+    hi = min(p.spectrum.size - 1, int((p.band_bins[-1] * df + margin_hz) / df))
+    bins = np.arange(lo, hi + 1)
+    clean = np.array(p.spectrum, dtype=complex)
+    if mains is not None:
+        clean[bins] -= mains_spectrum(bins, p.n_samples, p.sample_rate_hz, mains)
     if p.reference_spectra:
         refs = []
         for r in p.reference_spectra:
+            r = np.array(r, dtype=complex)
             if mains is not None:
                 comb = fit_mains(r, p.n_samples, p.sample_rate_hz, mains.fundamental_hz, mains.harmonics, coupled=True,
                                  iterations=0)
-                r = r - mains_spectrum(all_bins, p.n_samples, p.sample_rate_hz, comb)
+                r[bins] -= mains_spectrum(bins, p.n_samples, p.sample_rate_hz, comb)
             refs.append(r)
-        clean = np.array(clean, dtype=complex)
-        clean[p.band_bins] = cancel_references(clean, refs, p.band_bins, p.sample_rate_hz / p.n_samples)
+        without_fid = clean - fid_model
+        explained = without_fid[bins] - cancel_references(without_fid, refs, bins, df)
+        clean[bins] -= explained
     return clean
 
 
@@ -87,11 +99,11 @@ def build_display(prepared: "list[PreparedShot]", mains: list[MainsFit | None], 
     start, length = common_window(starts, [p.n_samples for p in prepared], fs)
     clean_full, clean_band, model_band, raw_full = [], [], [], []
     for p, m, line in zip(prepared, mains, fit.shots):
-        spectrum = cleaned_spectrum(p, m)
-        gain = passband(spectrum.size, fs / p.n_samples, fit.frequency_hz, half)
         t = p.start_s + np.arange(p.n_samples) / fs
         model = fid_trace(t, fit.frequency_hz, fit.rate_per_s, line.amplitude, line.phase_rad)
         model_spec = np.fft.rfft(model)
+        spectrum = cleaned_spectrum(p, m, model_spec, half + TAPER_HZ)
+        gain = passband(spectrum.size, fs / p.n_samples, fit.frequency_hz, half)
         for target, values in ((clean_full, irfft(spectrum, p.n_samples)), (clean_band, irfft(spectrum * gain, p.n_samples)),
                                (model_band, irfft(model_spec * gain, p.n_samples)), (raw_full, p.window_raw)):
             target.append(cut_to_window(values, p.start_s, start, length, fs))

@@ -111,7 +111,20 @@ class _Shot:
     nuisance: np.ndarray  # real-stacked nuisance columns, weighted (2M x L)
     fixed: np.ndarray  # complex far-harmonic spectrum on bins
     near: np.ndarray
-    weight: float = 1.0
+    weight: float
+    q_nuisance: np.ndarray  # orthonormal basis of the nuisance columns
+    y_perp: np.ndarray  # y with the nuisance part projected out
+
+
+@dataclass
+class _Eval:
+    """One shot at one (f, r): FID coefficients, weighted residual, FID columns, Jacobians."""
+
+    fid_coef: np.ndarray
+    res: np.ndarray
+    fid_cols: np.ndarray
+    jac: np.ndarray | None  # d(model)/d(f, r), weighted, not projected
+    jac_perp: np.ndarray | None  # projected off the FID and nuisance columns
 
 
 def _prepare(shot: ShotSpectrum, centre_hz: float, half_width_hz: float, weight: float) -> _Shot:
@@ -127,20 +140,26 @@ def _prepare(shot: ShotSpectrum, centre_hz: float, half_width_hz: float, weight:
         is_near = np.abs(freqs - centre_hz) <= half_width_hz + 2 * df
         near = shot.mains.harmonics[is_near]
         fixed = mains_spectrum(bins, shot.n_samples, shot.sample_rate_hz, shot.mains.without(~is_near))
-        for f in freqs[is_near]:
-            p, q = line_columns(bins, shot.n_samples, shot.sample_rate_hz, float(f), 0.0)
-            cols += [_real(p), _real(q)]
+        if near.size:
+            p, q = line_columns(bins, shot.n_samples, shot.sample_rate_hz, freqs[is_near], np.zeros(near.size))
+            for pm, qm in zip(p, q):
+                cols += [_real(pm), _real(qm)]
     slope = (bins * df - centre_hz) / half_width_hz
     for ref in shot.references:
         r = ref[bins]
         cols += [_real(r), _real(1j * r), _real(r * slope), _real(1j * r * slope)]
-    nuisance = np.stack(cols, axis=1) if cols else np.zeros((2 * bins.size, 0))
-    y = _real(shot.spectrum[bins] - fixed)
-    return _Shot(shot, bins, y * weight, nuisance * weight, fixed, near, weight)
+    nuisance = (np.stack(cols, axis=1) if cols else np.zeros((2 * bins.size, 0))) * weight
+    y = _real(shot.spectrum[bins] - fixed) * weight
+    q_n = np.linalg.qr(nuisance)[0] if cols else np.zeros((2 * bins.size, 0))
+    return _Shot(shot, bins, y, nuisance, fixed, near, weight, q_n, y - q_n @ (q_n.T @ y))
 
 
-def _evaluate(shots: list[_Shot], f: float, r: float, with_jacobian: bool):
-    """Per shot: linear coefficients, weighted residual, columns and (optionally) projected Jacobian."""
+def _project_off(q: np.ndarray, x: np.ndarray) -> np.ndarray:
+    return x - q @ (q.T @ x) if q.shape[1] else x
+
+
+def _evaluate(shots: list[_Shot], f: float, r: float, with_jacobian: bool) -> list[_Eval]:
+    """Variable projection per shot: nuisance projected out first, then the FID's two columns."""
     out = []
     for s in shots:
         d = s.data
@@ -149,19 +168,22 @@ def _evaluate(shots: list[_Shot], f: float, r: float, with_jacobian: bool):
         else:
             p, q = line_columns(s.bins, d.n_samples, d.sample_rate_hz, f, r)
         fid_cols = np.stack([_real(p), _real(q)], axis=1) * s.weight
-        basis = np.concatenate([fid_cols, s.nuisance], axis=1)
-        coef, *_ = np.linalg.lstsq(basis, s.y, rcond=None)
-        res = s.y - basis @ coef
-        jac = None
+        fp = _project_off(s.q_nuisance, fid_cols)
+        gram = fp.T @ fp
+        coef = np.linalg.solve(gram, fp.T @ s.y_perp)
+        res = s.y_perp - fp @ coef
+        jac = jac_perp = None
         if with_jacobian:
-            a, b = coef[0], coef[1]
+            a, b = coef
             jac = np.stack([_real(a * pf + b * qf), _real(a * pr + b * qr)], axis=1) * s.weight
-        out.append((coef, res, basis, jac))
+            j1 = _project_off(s.q_nuisance, jac)
+            jac_perp = j1 - fp @ np.linalg.solve(gram, fp.T @ j1)
+        out.append(_Eval(coef, res, fid_cols, jac, jac_perp))
     return out
 
 
-def _rss(evaluated) -> float:
-    return float(sum(res @ res for _, res, _, _ in evaluated))
+def _rss(evaluated: list[_Eval]) -> float:
+    return float(sum(e.res @ e.res for e in evaluated))
 
 
 def _gauss_newton(shots: list[_Shot], f: float, r: float, df_max: float, rate_floor: float) -> tuple[float, float, int]:
@@ -171,13 +193,8 @@ def _gauss_newton(shots: list[_Shot], f: float, r: float, df_max: float, rate_fl
     rss = _rss(current)
     it = 0
     for it in range(1, MAX_ITERATIONS + 1):
-        jtj = np.zeros((2, 2))
-        jtr = np.zeros(2)
-        for coef, res, basis, jac in current:
-            q, _ = np.linalg.qr(basis)
-            jp = jac - q @ (q.T @ jac)
-            jtj += jp.T @ jp
-            jtr += jp.T @ res
+        jtj = sum(e.jac_perp.T @ e.jac_perp for e in current)
+        jtr = sum(e.jac_perp.T @ e.res for e in current)
         scale = np.sqrt(np.maximum(np.diag(jtj), 1e-300))
         accepted, done = False, False
         while lam < 1e10:
@@ -203,6 +220,15 @@ def _start_rate(shots: list[_Shot], f: float, record_s: float) -> float:
     candidates = [k / record_s for k in RATE_START_FACTORS] + [k * 10.0 / record_s for k in (5.0, 20.0)]
     scores = [_rss(_evaluate(shots, f, r, False)) for r in candidates]
     return candidates[int(np.argmin(scores))]
+
+
+def _full(s: _Shot, e: _Eval) -> tuple[np.ndarray, np.ndarray]:
+    """(all linear coefficients, all columns) of a shot: FID first, then the nuisance."""
+    basis = np.concatenate([e.fid_cols, s.nuisance], axis=1)
+    if s.nuisance.shape[1]:
+        nuis, *_ = np.linalg.lstsq(s.nuisance, s.y - e.fid_cols @ e.fid_coef, rcond=None)
+        return np.concatenate([e.fid_coef, nuis]), basis
+    return np.array(e.fid_coef), basis
 
 
 def _shot_line(s: _Shot, coef: np.ndarray, res: np.ndarray, basis: np.ndarray, jac: np.ndarray, f: float, r: float,
@@ -271,26 +297,17 @@ def fit_line(shots: list[ShotSpectrum], frequency_start_hz: float, rate_start_pe
             break
         half_width = wanted
     evaluated = _evaluate(prepared, f, r, True)
+    full = [_full(s, e) for s, e in zip(prepared, evaluated)]
     rss = _rss(evaluated)
-    n_params = 2 + sum(basis.shape[1] for _, _, basis, _ in evaluated)
-    dof = max(1, sum(res.size for _, res, _, _ in evaluated) - n_params)
+    n_params = 2 + sum(basis.shape[1] for _, basis in full)
+    dof = max(1, sum(e.res.size for e in evaluated) - n_params)
     s2 = rss / dof
-    jtj = np.zeros((2, 2))
-    rss_null = 0.0
-    for (coef, res, basis, jac), s in zip(evaluated, prepared):
-        q, _ = np.linalg.qr(basis)
-        jp = jac - q @ (q.T @ jac)
-        jtj += jp.T @ jp
-        if s.nuisance.shape[1]:
-            c0, *_ = np.linalg.lstsq(s.nuisance, s.y, rcond=None)
-            null_res = s.y - s.nuisance @ c0
-        else:
-            null_res = s.y
-        rss_null += float(null_res @ null_res)
+    jtj = sum(e.jac_perp.T @ e.jac_perp for e in evaluated)
+    rss_null = float(sum(s.y_perp @ s.y_perp for s in prepared))
     cov_theta = s2 * np.linalg.pinv(jtj)
     lines, grads, ks = [], [], []
-    for (coef, res, basis, jac), s in zip(evaluated, prepared):
-        line, g, k = _shot_line(s, coef, res, basis, jac, f, r, cov_theta, s2, len(prepared))
+    for (coef, basis), e, s in zip(full, evaluated, prepared):
+        line, g, k = _shot_line(s, coef, e.res, basis, e.jac, f, r, cov_theta, s2, len(prepared))
         lines.append(line)
         grads.append(g)
         ks.append(k)
@@ -300,7 +317,7 @@ def fit_line(shots: list[ShotSpectrum], frequency_start_hz: float, rate_start_pe
     g_theta = np.array([0.0, np.mean([s.data.start_s * ln.amplitude for s, ln in zip(prepared, lines)])])
     shared = g_theta - sum(g @ k for g, k in zip(grads, ks)) / n
     own = sum(s2 * float(g @ np.linalg.pinv(basis) @ np.linalg.pinv(basis).T @ g)
-              for g, (_, _, basis, _) in zip(grads, evaluated)) / n**2
+              for g, (_, basis) in zip(grads, full)) / n**2
     amplitude_var = own + float(shared @ cov_theta @ shared)
     resultant = sum(ln.amplitude * complex(math.cos(ln.phase_rad), math.sin(ln.phase_rad)) for ln in lines)
     return LineFit(

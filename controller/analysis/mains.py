@@ -155,7 +155,7 @@ def fit_fundamental(spectrum: np.ndarray, n_samples: int, sample_rate_hz: float,
     normal equations A^H A c = A^H X, A_km = S(u_mk)/2; the Gauss-Newton step uses the
     Jacobian J = sum_m c_m dS(u_m)/df0 / 2 projected off the columns of A:
     df0 = Re(J_perp^H res) / |J_perp|^2, var(f0) = s^2 / |J_perp|^2, s^2 = |res|^2 / (2K - 2M - 1)
-    per real component.  Stops when the step is below 1 % of sd(f0).
+    per real component.  Stops when the step is below 10 % of sd(f0).
     """
     f0 = float(f0_start_hz)
     sd = float("inf")
@@ -181,7 +181,7 @@ def fit_fundamental(spectrum: np.ndarray, n_samples: int, sample_rate_hz: float,
         step = float(np.vdot(jac_perp, res).real) / norm
         limit = 0.3 * sample_rate_hz / n_samples / harmonics.max()
         f0 += float(np.clip(step, -limit, limit))
-        if abs(step) < 0.01 * sd:
+        if abs(step) < 0.1 * sd:
             break
     return f0, sd
 

@@ -1,5 +1,9 @@
 """A PNG of an analysis: trace with fitted envelope, residual, spectra before and after noise removal.
 
+The trace panel shows the envelope |x^a(t)| of the cleaned, band-limited record (x^a its
+analytic signal) against the fitted A exp(-t/T2*), with the first 10 ms of the carrier and
+the fit in an inset (a second of a 2 kHz carrier would be a solid band).
+
 matplotlib with the Agg backend (no display needed).  Units: seconds after time zero,
 the record's units (volts for stored runs, full scale for WAV files), Hz, and nT on a
 second axis of the line's close-up (B = f / (gamma / 2 pi)).
@@ -10,6 +14,7 @@ from __future__ import annotations
 from pathlib import Path
 
 import numpy as np
+from scipy.signal import hilbert
 
 from controller.analysis.result import AnalysisResult
 from controller.errors import InputError
@@ -44,18 +49,26 @@ def plot_analysis(result: AnalysisResult, path: str | Path, title: str = "", uni
 
     ax = axes[0]
     lo, hi = d.passband_hz
-    ax.plot(d.times_s, d.trace, lw=0.4, color="0.35", label=f"cleaned record, {lo:.0f}-{hi:.0f} Hz")
+    step = max(1, d.times_s.size // 4000)
+    envelope = np.abs(hilbert(d.trace))
+    ax.plot(d.times_s[::step], envelope[::step], lw=0.7, color="0.2", label=f"envelope of the cleaned record ({lo:.0f}-{hi:.0f} Hz)")
     if result.detected:
-        ax.plot(d.times_s, d.fit, lw=0.4, color="tab:blue", alpha=0.8, label="fitted FID")
-        ax.plot(d.times_s, d.envelope, color="tab:red", lw=1.2, label="fitted envelope ± A exp(-t/T2*)")
-        ax.plot(d.times_s, -d.envelope, color="tab:red", lw=1.2)
+        ax.plot(d.times_s, d.envelope, color="tab:red", lw=1.5, label="fitted envelope A exp(-t/T2*)")
     ax.set_xlabel("time after switch-off / pulse end (s)")
     ax.set_ylabel(f"signal ({units})")
+    ax.set_ylim(bottom=0)
     ax.legend(loc="upper right", fontsize=8)
     ax.set_title("trace" + (" (stack, phase-aligned)" if d.shots > 1 else ""), fontsize=9)
+    inset = ax.inset_axes([0.06, 0.08, 0.34, 0.38])
+    first = d.times_s <= d.times_s[0] + 0.01
+    inset.plot(d.times_s[first] * 1e3, d.trace[first], lw=0.8, color="0.3", label="record")
+    if result.detected:
+        inset.plot(d.times_s[first] * 1e3, d.fit[first], lw=0.8, ls="--", color="tab:blue", label="fit")
+    inset.set_title("first 10 ms (ms)", fontsize=7)
+    inset.tick_params(labelsize=6)
 
     ax = axes[1]
-    ax.plot(d.times_s, d.residual, lw=0.4, color="tab:gray")
+    ax.plot(d.times_s, d.residual, lw=0.3, color="tab:gray", rasterized=True)
     ax.set_xlabel("time after switch-off / pulse end (s)")
     ax.set_ylabel(f"residual ({units})")
     ax.set_title("residual: cleaned record minus fitted FID, same pass band", fontsize=9)
