@@ -15,7 +15,7 @@ Steps (each a pure function):
 3. `fit_mains`: variable-projection Gauss-Newton (Golub & Pereyra, SIAM J. Numer. Anal.
    10:413 (1973)) for f0 on the bins around the strongest harmonics, with their c_m solved by
    linear least squares at each step (`fit_fundamental`); then every c_m (`fit_amplitudes`);
-4. `mains_spectrum`: the model's DFT on any bins, to subtract.
+4. `mains_spectrum`: the model's DFT on any bins, to subtract; `subtract_mains` does it to a record.
 """
 
 from __future__ import annotations
@@ -30,7 +30,7 @@ NOMINALS_HZ = (50.0, 60.0)
 GRID_TOLERANCE = 0.01  # +/-1 % grid frequency tolerance [pub: EN 50160]
 PEAK_SIGNIFICANCE = 25.0  # peak power / local median power; common practice, no source
 FIT_HALF_WIDTH_BINS = 3
-MIN_HARMONICS = 2
+MIN_HARMONICS = 3
 MAX_F0_HARMONICS = 24
 
 
@@ -114,13 +114,19 @@ def choose_mains(spectrum: np.ndarray, n_samples: int, sample_rate_hz: float, ch
     """Nominal fundamental and its significant peaks (m, f_m, significance), or None when the record shows no hum.
 
     choice is 50, 60 or "auto"; auto takes the nominal with more significant harmonics
-    (ties: the larger summed significance).  Fewer than MIN_HARMONICS significant peaks
-    means no hum is modelled.
+    (ties: the larger summed significance).  Only peaks within 2 bins of m f0 for the
+    least-squares f0 of the peaks count (an FID or a stray line is not a comb); fewer than
+    MIN_HARMONICS such peaks means no hum is modelled.
     """
     nominals = NOMINALS_HZ if choice == "auto" else (float(choice),)
     best: tuple | None = None
+    bin_hz = sample_rate_hz / n_samples
     for nominal in nominals:
         m, f, sig = find_harmonic_peaks(spectrum, n_samples, sample_rate_hz, nominal, max_frequency_hz)
+        if m.size:
+            f0 = initial_fundamental_hz(m, f, bin_hz)
+            consistent = np.abs(f - m * f0) <= 2 * bin_hz
+            m, f, sig = m[consistent], f[consistent], sig[consistent]
         score = (float(m.size), float(np.sum(np.log(sig))) if sig.size else 0.0)
         if m.size >= MIN_HARMONICS and (best is None or score > best[:2]):
             best = (*score, nominal, m, f, sig)
@@ -262,6 +268,18 @@ def mains_spectrum(bins: np.ndarray, n_samples: int, sample_rate_hz: float, main
     return out
 
 
+def subtract_mains(record: np.ndarray, sample_rate_hz: float, mains: MainsFit | None) -> np.ndarray:
+    """The record minus the hum model: irfft(X - sum_m (a_m P_m + b_m Q_m)) on every bin (a new array).
+
+    mains must have been fitted to this record's DFT (same length).
+    """
+    x = np.asarray(record, dtype=float)
+    if mains is None or mains.harmonics.size == 0:
+        return x.copy()
+    spectrum = np.fft.rfft(x)
+    return np.fft.irfft(spectrum - mains_spectrum(np.arange(spectrum.size), x.size, sample_rate_hz, mains), x.size)
+
+
 def estimate_mains(spectrum: np.ndarray, n_samples: int, sample_rate_hz: float, choice: str | float,
                    max_frequency_hz: float, exclude_hz: tuple[tuple[float, float], ...] = ()) -> MainsFit | None:
     """Steps 1-3 of the module docstring: None when the record shows no hum.
@@ -295,5 +313,5 @@ def comb_bins(mains: MainsFit, n_samples: int, sample_rate_hz: float) -> np.ndar
 
 
 __all__ = ["MainsFit", "hann_smoothed", "find_harmonic_peaks", "initial_fundamental_hz", "choose_mains",
-           "fit_fundamental", "fit_amplitudes", "fit_mains", "mains_spectrum", "estimate_mains", "refit_mains",
+           "fit_fundamental", "fit_amplitudes", "fit_mains", "mains_spectrum", "subtract_mains", "estimate_mains", "refit_mains",
            "comb_bins", "NOMINALS_HZ"]

@@ -38,7 +38,7 @@ from controller.analysis.blanking import Blanking, find_usable_start
 from controller.analysis.despike import despike
 from controller.analysis.detection import decide
 from controller.analysis.linefit import LineFit, ShotSpectrum, fid_spectrum, fit_line, window_half_width_hz
-from controller.analysis.mains import MainsFit, comb_bins, estimate_mains, fit_mains, mains_spectrum, refit_mains
+from controller.analysis.mains import NOMINALS_HZ, MainsFit, comb_bins, estimate_mains, fit_mains, mains_spectrum, refit_mains
 from controller.analysis.reference import cancel_references
 from controller.analysis.result import AnalysisResult, build_result
 from controller.analysis.spectrum import band_bins, peak_frequency_hz
@@ -131,7 +131,8 @@ def prepare_shot(shot: ShotData, options: AnalysisOptions) -> PreparedShot:
     signal = np.asarray(samples[options.channel], dtype=float)
     end = signal.size if shot.n_samples is None else min(signal.size, shot.first_sample + shot.n_samples)
     first = max(0, shot.first_sample)
-    blanking = (find_usable_start(signal[:end], first, fs, shot.full_scale) if options.blank
+    nominal = NOMINALS_HZ if options.mains == "auto" else (float(options.mains),)
+    blanking = (find_usable_start(signal[:end], first, fs, shot.full_scale, nominal) if options.blank
                 else Blanking(first, None, None, None))
     start = blanking.start_sample
     if end - start < max(MIN_WINDOW_SAMPLES, MIN_WINDOW_S * fs):

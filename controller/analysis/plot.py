@@ -24,7 +24,8 @@ def _db(values: np.ndarray) -> np.ndarray:
     return 20 * np.log10(np.maximum(values, 1e-300))
 
 
-def plot_analysis(result: AnalysisResult, path: str | Path, title: str = "", units: str = "V") -> None:
+def plot_analysis(result: AnalysisResult, path: str | Path, title: str = "", units: str = "V",
+                  time_label: str = "time after switch-off / pulse end (s)") -> None:
     """Write the four-panel figure to path (PNG); result must come from an analysis with display=True."""
     import matplotlib
 
@@ -54,7 +55,7 @@ def plot_analysis(result: AnalysisResult, path: str | Path, title: str = "", uni
     ax.plot(d.times_s[::step], envelope[::step], lw=0.7, color="0.2", label=f"envelope of the cleaned record ({lo:.0f}-{hi:.0f} Hz)")
     if result.detected:
         ax.plot(d.times_s, d.envelope, color="tab:red", lw=1.5, label="fitted envelope A exp(-t/T2*)")
-    ax.set_xlabel("time after switch-off / pulse end (s)")
+    ax.set_xlabel(time_label)
     ax.set_ylabel(f"signal ({units})")
     ax.set_ylim(bottom=0)
     ax.legend(loc="upper right", fontsize=8)
@@ -69,7 +70,7 @@ def plot_analysis(result: AnalysisResult, path: str | Path, title: str = "", uni
 
     ax = axes[1]
     ax.plot(d.times_s, d.residual, lw=0.3, color="tab:gray", rasterized=True)
-    ax.set_xlabel("time after switch-off / pulse end (s)")
+    ax.set_xlabel(time_label)
     ax.set_ylabel(f"residual ({units})")
     ax.set_title("residual: cleaned record minus fitted FID, same pass band", fontsize=9)
 

@@ -131,7 +131,7 @@ def write_wav(path: str | Path, samples: np.ndarray, sample_rate_hz: int, bits_p
         scale = 2.0 ** (bits_per_sample - 1)
         ints = np.clip(np.round(frames * scale), -scale, scale - 1).astype(np.int64)
         if bits_per_sample == 24:
-            u = (ints & 0xFFFFFF).astype("<u4")
+            u = np.ascontiguousarray((ints & 0xFFFFFF).astype("<u4"))
             body = u.view(np.uint8).reshape(-1, 4)[:, :3].tobytes()
         elif bits_per_sample in (16, 32):
             body = ints.astype(f"<i{bits_per_sample // 8}").tobytes()

@@ -133,7 +133,8 @@ def run(args: argparse.Namespace) -> int:
     if args.plot:
         from controller.analysis.plot import plot_analysis
 
-        plot_analysis(result, args.plot, title, units)
+        time_label = "time from the start of the recording (s)" if args.path else "time after switch-off / pulse end (s)"
+        plot_analysis(result, args.plot, title, units, time_label)
     data = result.as_dict()
     if args.json:
         print(to_json(data))
