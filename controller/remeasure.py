@@ -2,15 +2,18 @@
 
 A base-station run of many shots has one run-level result (its whole stack); a time series
 needs a reading per shot (or per group of N consecutive good shots, stacked for SNR).  Each
-group goes through the same analysis as a run (controller.analysis.run_analysis); the
-readings replace the run's earlier per-shot readings in one transaction.
+group goes through the same analysis as a run (controller.analysis.sources.analyse_records);
+a group without a detected FID counts as a failure.  The readings replace the run's earlier per-shot readings in one transaction.
 """
 
 from __future__ import annotations
 
 from typing import Iterable, Iterator
 
-from controller.analysis.run_analysis import analyse_shots, window_of
+import numpy as np
+
+from controller.analysis.sources import analyse_records
+from controller.errors import PrecessError
 from controller.store import Store, StoredShot
 from controller.store_queries import Selection, run_ids
 
@@ -36,11 +39,12 @@ def remeasure(store: Store, sel: Selection, group: int, created_at_s: float) -> 
         readings, failed, seen = [], 0, 0
         for members in _groups(store.shots(run_id), group):
             seen += 1
-            windows = [window_of(s.samples, s.channel_names, s.sample_rate_hz, s.acquire_start_sample,
-                                 s.acquire_samples, s.dead_time_s) for s in members]
             try:
-                result = analyse_shots(windows)
-            except (ValueError, ArithmeticError):
+                result = analyse_records(members).as_dict()
+            except (PrecessError, ValueError, ArithmeticError, np.linalg.LinAlgError):
+                failed += 1
+                continue
+            if not result["detected"]:
                 failed += 1
                 continue
             readings.append((result, (members[0].shot_index, members[-1].shot_index)))

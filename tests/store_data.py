@@ -6,7 +6,7 @@ import dataclasses
 import shutil
 from pathlib import Path
 
-from controller.analysis.run_analysis import analyse_shots, window_of
+from controller.analysis.sources import analyse_records
 from controller.cli.common import config_snapshot
 from controller.clock import VirtualClock
 from controller.config.loader import load_rig, load_sequence
@@ -29,9 +29,8 @@ def simulated_run(store: Store, shots: int, start_epoch_s: float, analyse: bool 
     engine.critical_sinks.append(store.write)
     outcome = engine.run(timeline, config_snapshot(loaded, spec, str(FID_SUDDEN)))
     if analyse:
-        windows = [window_of(s.samples, s.channel_names, s.sample_rate_hz, s.acquire_start_sample,
-                             s.acquire_samples, s.dead_time_s) for s in store.shots(outcome.run_id)]
-        store.add_result(outcome.run_id, "fid", analyse_shots(windows), clock.now())
+        result = analyse_records(list(store.shots(outcome.run_id)))
+        store.add_result(outcome.run_id, "fid", result.as_dict(), clock.now())
     return outcome.run_id
 
 

@@ -7,6 +7,7 @@ import pytest
 
 from controller.analysis import crb
 from controller.analysis.linefit import ShotSpectrum, fit_line
+from controller.physics import precision
 
 
 def test_undamped_bound_matches_rife_boorstyn():
@@ -16,17 +17,19 @@ def test_undamped_bound_matches_rife_boorstyn():
     fs, n, amplitude, sigma = 8000.0, 4000, 0.7, 0.3
     t = crb.sample_times_s(n, fs)
     numeric = crb.crb_covariance(crb.undamped_sine_jacobian(t, 1234.5, amplitude, 0.8), sigma)
-    closed = crb.rife_boorstyn_frequency_sd_hz(amplitude, sigma, fs, n)
+    closed = precision.undamped_frequency_crb_sd_hz(amplitude, sigma, 1.0 / fs, n)
     assert math.sqrt(numeric[0, 0]) == pytest.approx(closed, rel=2e-3)
 
 
 def test_damped_bound_matches_closed_form():
     # source: REFERENCE.md "Estimation limits": var(omega) >= (2 sigma^2/A^2) S0/(S0 S2 - S1^2),
     # S_k = sum t^k exp(-2 t / T2*) (Yao & Pandit, IEEE Trans. SP 43 (1995), from memory)
-    fs, n = 48000.0, 24000
-    t = crb.sample_times_s(n, fs, start_s=0.01)
-    numeric = crb.frequency_crb_sd_hz(t, 2050.0, 1 / 0.3, 1.0, 0.4, 2.0)
-    assert numeric == pytest.approx(crb.damped_frequency_sd_hz(t, 1 / 0.3, 1.0, 2.0), rel=1e-3)
+    fs, n, sigma = 48000.0, 24000, 2.0
+    t = crb.sample_times_s(n, fs)
+    numeric = crb.frequency_crb_sd_hz(t, 2050.0, 1 / 0.3, 1.0, 0.4, sigma)
+    density = sigma / math.sqrt(fs / 2)  # sigma^2 = e_n^2 fs / 2
+    closed = precision.frequency_crb_sd_hz(1.0, density, fs, n / fs, t2star_s=0.3)
+    assert numeric == pytest.approx(closed, rel=1e-3)
 
 
 def test_nuisance_harmonic_next_to_the_line_raises_the_bound():

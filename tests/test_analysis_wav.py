@@ -6,7 +6,8 @@ import numpy as np
 import pytest
 from scipy.io import wavfile
 
-from controller.analysis.wavfile import read_wav, write_wav
+from controller.analysis.wavfile import read_wav
+from controller.export.wav import WavWriter
 from controller.errors import InputError
 
 
@@ -25,13 +26,15 @@ def test_matches_scipy_reader(tmp_path, dtype, scale):
     np.testing.assert_array_equal(ours.samples, ref.T.astype(float) / scale)
 
 
-def test_24_bit_round_trip_and_scipy_agrees(tmp_path):
+def test_24_bit_extensible_from_the_exporter_and_scipy_agrees(tmp_path):
     # source: scipy.io.wavfile reads 24-bit PCM (as int32 shifted left by 8 bits)
     rng = np.random.default_rng(2)
     data = np.round(rng.uniform(-0.99, 0.99, size=(2, 1001)) * 2**23) / 2**23
     path = tmp_path / "x24.wav"
-    write_wav(path, data, 96000, 24)
+    with WavWriter(path, 96000, 2, "pcm24", comment="Heron-2 test") as w:
+        w.write(data)
     ours = read_wav(path)
+    assert ours.bits_per_sample == 24 and ours.sample_rate_hz == 96000
     np.testing.assert_array_equal(ours.samples, data)
     rate, ref = wavfile.read(path)
     assert rate == 96000
@@ -62,7 +65,7 @@ def test_bad_files(tmp_path, content, words):
 
 def test_truncated_file(tmp_path):
     path = tmp_path / "t.wav"
-    write_wav(path, np.zeros((1, 1000)), 48000, 16)
+    wavfile.write(path, 48000, np.zeros(1000, dtype=np.int16))
     data = path.read_bytes()
     path.write_bytes(data[:len(data) // 2])
     with pytest.raises(InputError, match="truncated"):

@@ -8,12 +8,17 @@ from pathlib import Path
 import numpy as np
 import pytest
 
-from controller.analysis.wavfile import write_wav
+from controller.export.wav import WavWriter
 from controller.cli.common import config_snapshot, load_and_compile, make_clock, open_rig
 from controller.cli.main import main
 from controller.config.loader import load_rig
 from controller.engine import Engine
 from controller.records import ShotAcquired
+
+def write_wav(path, samples, rate, encoding="pcm24"):
+    with WavWriter(path, rate, samples.shape[0], encoding) as w:
+        w.write(samples)
+
 
 ROOT = Path(__file__).resolve().parent.parent
 RIG = ROOT / "configs" / "rigs" / "demo-sim.toml"
@@ -51,7 +56,7 @@ def test_wav_of_a_simulated_shot_gives_the_true_frequency(tmp_path, capsys, simu
     # truth: SimulatedInstrument.larmor_hz (CODATA 2022 shielded gamma x the site's field) and t2star_s
     shot, f_true, t2_true, full_scale = simulated_shot
     path = tmp_path / "shot.wav"
-    write_wav(path, shot.samples / full_scale, 48000, 24)  # both channels, from before the switch-off
+    write_wav(path, shot.samples / full_scale, 48000)  # both channels, from before the switch-off
     plot = tmp_path / "shot.png"
     assert main([ "analyze", str(path), "--ref-channel", "1", "--json", "--plot", str(plot)]) == 0
     result = json.loads(capsys.readouterr().out)
@@ -82,7 +87,7 @@ def test_stored_run_through_analyze(tmp_path, capsys):
 def test_noise_only_recording_reports_no_detection(tmp_path, capsys):
     rng = np.random.default_rng(3)
     path = tmp_path / "noise.wav"
-    write_wav(path, rng.normal(0, 0.01, (1, 48000)), 48000, 16)
+    write_wav(path, rng.normal(0, 0.01, (1, 48000)), 48000)
     assert main(["analyze", str(path), "--json"]) == 0
     result = json.loads(capsys.readouterr().out)
     assert result["detected"] is False
@@ -91,7 +96,7 @@ def test_noise_only_recording_reports_no_detection(tmp_path, capsys):
 
 def test_bad_inputs_give_one_line(tmp_path, capsys):
     good = tmp_path / "good.wav"
-    write_wav(good, np.random.default_rng(0).normal(0, 0.01, (2, 48000)), 48000, 16)
+    write_wav(good, np.random.default_rng(0).normal(0, 0.01, (2, 48000)), 48000)
     truncated = tmp_path / "truncated.wav"
     truncated.write_bytes(good.read_bytes()[:5000])
     not_wav = tmp_path / "notes.wav"
@@ -112,7 +117,7 @@ def test_bad_inputs_give_one_line(tmp_path, capsys):
 
 def test_bad_input_through_a_real_process(tmp_path):
     path = tmp_path / "short.wav"
-    write_wav(path, np.zeros((1, 100)), 48000, 16)
+    write_wav(path, np.zeros((1, 100)), 48000, "float32")
     proc = subprocess.run([sys.executable, "-m", "controller.cli.main", "analyze", str(path)],
                           capture_output=True, text=True, cwd=ROOT, timeout=120)
     assert proc.returncode != 0

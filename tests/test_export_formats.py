@@ -9,13 +9,15 @@ from __future__ import annotations
 import csv
 import warnings
 
+from types import SimpleNamespace
+
 import numpy as np
 import pytest
 from scipy import constants
 from scipy.io import wavfile
 from scipy.signal import hilbert
 
-from controller.analysis.run_analysis import window_of
+from controller.analysis.sources import shot_from_record
 from controller.cli.main import main
 from controller.store import Store
 from controller.store_queries import Selection, measurements
@@ -129,9 +131,12 @@ def test_csv_and_npz_hold_the_readings(two_run_template, tmp_path):
         np.testing.assert_array_equal(z["samples"][3], shots[3].samples)
         assert z["channel_names"].tolist() == list(shots[0].channel_names)
         assert z["shot_run_id"].tolist() == [run_a] * 4
-        w = window_of(z["samples"][0], tuple(z["channel_names"]), float(z["sample_rate_hz"]),
-                      int(z["acquire_start_sample"][0]), int(z["acquire_samples"][0]), float(z["dead_time_s"][0]))
-        assert w.acquire_samples == shots[0].acquire_samples
+        w = shot_from_record(SimpleNamespace(
+            samples=z["samples"][0], channel_names=tuple(z["channel_names"]), sample_rate_hz=float(z["sample_rate_hz"]),
+            acquire_start_sample=int(z["acquire_start_sample"][0]), acquire_samples=int(z["acquire_samples"][0]),
+            dead_time_s=float(z["dead_time_s"][0])))
+        assert w.n_samples == shots[0].acquire_samples
+        assert w.first_sample - w.time_zero_sample == round(shots[0].dead_time_s * shots[0].sample_rate_hz)
 
 
 def test_bad_selections_are_one_line(two_run_template, tmp_path, capsys):

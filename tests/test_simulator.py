@@ -12,7 +12,7 @@ import math
 import numpy as np
 import pytest
 
-from controller.analysis.run_analysis import analyse_shots, window_of
+from controller.analysis.sources import analyse_records
 from controller.clock import VirtualClock
 from controller.config.loader import load_rig, load_sequence
 from controller.engine import Engine
@@ -92,8 +92,7 @@ def _run_shots(loaded, sequence_path, shots: int):
     outcome = engine.run(timeline, {})
     assert outcome.exit_status == "completed", outcome.reason
     shots_ = [r for r in records if isinstance(r, ShotAcquired)]
-    return rig, [window_of(s.samples, s.channel_names, s.sample_rate_hz, s.acquire_start_sample,
-                           s.acquire_samples, s.dead_time_s) for s in shots_], records
+    return rig, shots_, records
 
 
 def test_fid_analysis_recovers_truth_within_uncertainty():
@@ -101,7 +100,7 @@ def test_fid_analysis_recovers_truth_within_uncertainty():
     # consistent with its own reported uncertainty (3 sd)
     loaded = quiet_rig(load_rig(DEMO_RIG))
     rig, windows, _ = _run_shots(loaded, FID_SUDDEN, 4)
-    result = analyse_shots(windows)
+    result = analyse_records(windows).as_dict()
     inst = rig.instrument
     true_f = inst.larmor_hz(EPOCH_NOON_UTC)
     assert abs(result["frequency_hz"] - true_f) < 3 * result["frequency_sd_hz"] + 1e-4
@@ -115,7 +114,7 @@ def test_fid_amplitude_matches_reciprocity():
     loaded = quiet_rig(load_rig(DEMO_RIG))
     rig, windows, _ = _run_shots(loaded, FID_SUDDEN, 2)
     inst = rig.instrument
-    result = analyse_shots(windows)
+    result = analyse_records(windows).as_dict()
     spec = load_sequence(FID_SUDDEN)
     bp = inst.coil.field_per_amp_t * spec.polarise.current_a
     m0 = curie_magnetisation_a_per_m(math.hypot(bp, inst.earth_field_nt() * 1e-9), inst.sample.temperature_c,
@@ -134,13 +133,13 @@ def test_adiabatic_ramp_then_pulse_gives_fid():
     # (t90 = pi / (2 gamma B1_rot), REFERENCE.md); without the pulse there is no FID
     loaded = quiet_rig(load_rig(DEMO_RIG))
     _, windows, _ = _run_shots(loaded, FID_ADIABATIC, 1)
-    with_pulse = analyse_shots(windows)["amplitude"]
+    with_pulse = analyse_records(windows).as_dict()["amplitude"]
     _, sudden, _ = _run_shots(loaded, FID_SUDDEN, 1)
-    assert with_pulse > 0.5 * analyse_shots(sudden)["amplitude"]
+    assert with_pulse > 0.5 * analyse_records(sudden).as_dict()["amplitude"]
 
 
 def test_simulation_is_seeded():
     loaded = load_rig(DEMO_RIG)
     _, a, _ = _run_shots(loaded, FID_SUDDEN, 1)
     _, b, _ = _run_shots(loaded, FID_SUDDEN, 1)
-    assert np.array_equal(a[0].signal, b[0].signal)
+    assert np.array_equal(a[0].samples, b[0].samples)

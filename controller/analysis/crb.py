@@ -11,12 +11,9 @@ plus, as nuisance parameters that raise the bound, the mains comb
 sum_m (a_m cos 2 pi m f0 t + b_m sin 2 pi m f0 t) with f0 unknown, and any further columns
 the caller appends (e.g. a ringing transient).
 
-Closed forms to check against:
-- undamped real sinusoid, f, amplitude and phase unknown (Rife & Boorstyn, IEEE Trans.
-  IT-20:591 (1974) for the complex case; Kay 1993, eq. 3.41 for the real one):
-  var(omega) >= 24 sigma^2 / (A^2 dt^2 N (N^2 - 1));
-- damped, all four unknown (REFERENCE.md; Yao & Pandit, IEEE Trans. SP 43 (1995) [from memory]):
-  var(omega) >= (2 sigma^2 / A^2) S0 / (S0 S2 - S1^2), S_k = sum_n t_n^k exp(-2 t_n / T2*).
+The closed forms for the FID alone (Rife & Boorstyn 1974 undamped; the damped S_k form of
+REFERENCE.md) live in controller.physics.precision; the tests check this numerical Fisher
+information against them.
 """
 
 from __future__ import annotations
@@ -91,18 +88,3 @@ def full_model_crb_sd(times_s: np.ndarray, frequency_hz: float, rate_per_s: floa
     rate_sd = math.sqrt(cov[1, 1])
     return {"frequency_sd_hz": math.sqrt(cov[0, 0]), "rate_sd_per_s": rate_sd,
             "t2star_sd_s": rate_sd / rate_per_s**2 if rate_per_s > 0 else math.inf}
-
-
-def rife_boorstyn_frequency_sd_hz(amplitude: float, noise_sd: float, sample_rate_hz: float, n_samples: int) -> float:
-    """Undamped real sinusoid: sd(f) = sqrt(24 sigma^2 / (A^2 dt^2 N (N^2 - 1))) / (2 pi)."""
-    dt = 1.0 / sample_rate_hz
-    var_omega = 24.0 * noise_sd**2 / (amplitude**2 * dt**2 * n_samples * (n_samples**2 - 1))
-    return math.sqrt(var_omega) / (2 * math.pi)
-
-
-def damped_frequency_sd_hz(times_s: np.ndarray, rate_per_s: float, amplitude: float, noise_sd: float) -> float:
-    """Damped real sinusoid: sd(f) = sqrt((2 sigma^2/A^2) S0 / (S0 S2 - S1^2)) / (2 pi), S_k = sum t^k e^{-2 r t}."""
-    t = np.asarray(times_s, dtype=float)
-    e = np.exp(-2 * rate_per_s * t)
-    s0, s1, s2 = float(e.sum()), float((t * e).sum()), float((t * t * e).sum())
-    return math.sqrt(2 * noise_sd**2 / amplitude**2 * s0 / (s0 * s2 - s1**2)) / (2 * math.pi)

@@ -41,6 +41,9 @@ from controller.analysis.linefit import LineFit, ShotSpectrum, fid_spectrum, fit
 from controller.analysis.mains import NOMINALS_HZ, MainsFit, comb_bins, estimate_mains, fit_mains, mains_spectrum, refit_mains
 from controller.analysis.reference import cancel_references
 from controller.analysis.result import AnalysisResult, build_result
+
+__all__ = ["ShotData", "AnalysisOptions", "PreparedShot", "AnalysisResult", "prepare_shot", "analyse_prepared",
+           "analyse_shots", "joint_fit", "line_search_hz", "check_options", "gamma_value", "DEFAULT_BAND_HZ"]
 from controller.analysis.spectrum import band_bins, peak_frequency_hz
 from controller.errors import InputError
 from controller.physics.constants import gamma_hz_per_nt

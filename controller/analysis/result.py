@@ -28,7 +28,7 @@ if TYPE_CHECKING:
     from controller.analysis.pipeline import AnalysisOptions, PreparedShot
 
 FID_FIELDS = ("frequency_hz", "frequency_sd_hz", "field_nt", "field_sd_nt", "t2star_s", "t2star_sd_s",
-              "amplitude", "amplitude_sd", "phase_rad", "snr")
+              "amplitude", "amplitude_sd", "phase_rad", "snr", "shot_amplitudes", "shot_phases_rad")
 
 
 @dataclass(frozen=True)
@@ -62,6 +62,8 @@ class AnalysisResult:
     detection_reason: str
     fit_half_width_hz: float
     near_harmonics: tuple[int, ...]
+    shot_amplitudes: tuple[float, ...]  # A0 of each shot
+    shot_phases_rad: tuple[float, ...]  # phi0 of each shot (for phase-aligned stacking)
     display: "DisplayData | None" = field(default=None, repr=False, compare=False)
 
     def as_dict(self) -> dict[str, Any]:
@@ -71,14 +73,21 @@ class AnalysisResult:
             if name == "display":
                 continue
             value = getattr(self, name)
-            if isinstance(value, tuple):
-                value = list(value)
             if name in FID_FIELDS and not self.detected:
                 value = None
-            if isinstance(value, (float, np.floating)):
-                value = float(value) if math.isfinite(value) else None
+            if isinstance(value, tuple):
+                value = [_finite_or_none(v) for v in value]
+            value = _finite_or_none(value)
             out[name] = value
         return out
+
+
+def _finite_or_none(value: Any) -> Any:
+    if isinstance(value, (float, np.floating)):
+        return float(value) if math.isfinite(value) else None
+    if isinstance(value, np.integer):
+        return int(value)
+    return value
 
 
 def _mean_mains(mains: list[MainsFit | None]) -> tuple[float | None, float | None]:
@@ -112,7 +121,9 @@ def build_result(prepared: "list[PreparedShot]", mains: list[MainsFit | None], f
         spikes_replaced=int(sum(p.spikes_replaced for p in prepared)),
         blanking=",".join(sorted({p.blanking.reason for p in prepared})),
         detection_statistic=decision.statistic, detection_threshold=decision.threshold,
-        detection_reason=decision.reason, fit_half_width_hz=fit.half_width_hz, near_harmonics=tuple(near))
+        detection_reason=decision.reason, fit_half_width_hz=fit.half_width_hz, near_harmonics=tuple(near),
+        shot_amplitudes=tuple(line.amplitude for line in fit.shots),
+        shot_phases_rad=tuple(line.phase_rad for line in fit.shots))
     if not display:
         return result
     from controller.analysis.display import build_display

@@ -1,5 +1,8 @@
 """Where shots come from: live records, the store, WAV files.  Each becomes a pipeline ShotData.
 
+`analyse_records(records)` is the one call for engine records and stored shots: it picks the
+channel named "signal" and every "reference*" channel and runs the pipeline.
+
 Time zero of a shot is the end of the switch-off ramp or of the last pulse; the engine
 records the dead time from there to the acquisition start, so
 time_zero_sample = acquire_start_sample - round(dead_time_s fs).
@@ -14,7 +17,7 @@ from typing import Any, Protocol
 
 import numpy as np
 
-from controller.analysis.pipeline import ShotData
+from controller.analysis.pipeline import AnalysisOptions, AnalysisResult, ShotData, analyse_shots
 from controller.analysis.wavfile import read_wav
 from controller.errors import InputError
 from controller.store import Store
@@ -48,6 +51,24 @@ def default_channels(channel_names: tuple[str, ...]) -> tuple[int, tuple[int, ..
     signal = channel_names.index(SIGNAL_CHANNEL) if SIGNAL_CHANNEL in channel_names else 0
     refs = tuple(i for i, n in enumerate(channel_names) if n.startswith(REFERENCE_PREFIX) and i != signal)
     return signal, refs
+
+
+def options_for_channels(channel_names: tuple[str, ...], **changes: Any) -> AnalysisOptions:
+    """AnalysisOptions with the signal and reference channels chosen by name (default_channels)."""
+    signal, refs = default_channels(tuple(channel_names))
+    return AnalysisOptions(channel=signal, reference_channels=refs, **changes)
+
+
+def analyse_records(records: list[ShotLike], full_scale: float | None = None, display: bool = False,
+                    **changes: Any) -> AnalysisResult:
+    """Live or stored shots (all channels) through the pipeline, channels chosen by name.
+
+    The one call `precess run`, re-measurement and exports share; changes go to AnalysisOptions.
+    """
+    if not records:
+        raise InputError("no shots to analyse")
+    shots = [shot_from_record(r, full_scale) for r in records]
+    return analyse_shots(shots, options_for_channels(shots[0].channel_names, **changes), display)
 
 
 def converter_full_scale(config: dict[str, Any]) -> float | None:

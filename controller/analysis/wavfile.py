@@ -10,6 +10,7 @@ wider PCM is signed little-endian.
 
 Samples are returned as float64 in full-scale units: integer PCM is divided by 2^(bits-1),
 so the full scale is 1.0 for every format.  Every defect gives an InputError naming the file.
+(The writer for exports is controller.export.wav.WavWriter.)
 """
 
 from __future__ import annotations
@@ -115,32 +116,3 @@ def read_wav(path: str | Path) -> WavRecording:
     if samples.shape[1] == 0:
         raise InputError(f"{where}: the data chunk holds no samples")
     return WavRecording(samples=samples, sample_rate_hz=float(rate), bits_per_sample=bits, encoding=encoding)
-
-
-def write_wav(path: str | Path, samples: np.ndarray, sample_rate_hz: int, bits_per_sample: int = 24,
-              encoding: str = "pcm") -> None:
-    """Write (n_channels, n_frames) samples in full-scale units as PCM (16/24/32) or float (32); clips PCM at +/-1."""
-    x = np.atleast_2d(np.asarray(samples, dtype=float))
-    channels = x.shape[0]
-    frames = x.T
-    if encoding == "float":
-        if bits_per_sample != 32:
-            raise ValueError("float WAV is written as 32-bit")
-        body, tag = frames.astype("<f4").tobytes(), FORMAT_FLOAT
-    else:
-        scale = 2.0 ** (bits_per_sample - 1)
-        ints = np.clip(np.round(frames * scale), -scale, scale - 1).astype(np.int64)
-        if bits_per_sample == 24:
-            u = np.ascontiguousarray((ints & 0xFFFFFF).astype("<u4"))
-            body = u.view(np.uint8).reshape(-1, 4)[:, :3].tobytes()
-        elif bits_per_sample in (16, 32):
-            body = ints.astype(f"<i{bits_per_sample // 8}").tobytes()
-        else:
-            raise ValueError("PCM WAV is written as 16, 24 or 32-bit")
-        tag = FORMAT_PCM
-    align = channels * bits_per_sample // 8
-    fmt = struct.pack("<HHIIHH", tag, channels, int(sample_rate_hz), int(sample_rate_hz) * align, align, bits_per_sample)
-    chunks = b"fmt " + struct.pack("<I", len(fmt)) + fmt + b"data" + struct.pack("<I", len(body)) + body
-    if len(body) & 1:
-        chunks += b"\0"
-    Path(path).write_bytes(b"RIFF" + struct.pack("<I", 4 + len(chunks)) + b"WAVE" + chunks)

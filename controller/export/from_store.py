@@ -14,9 +14,9 @@ from typing import Any, Iterator
 import numpy as np
 
 from controller import __version__
-from controller.analysis.run_analysis import analyse_shots, window_of
-from controller.analysis.stack import stack_windows
-from controller.errors import InputError
+from controller.analysis.sources import analyse_records, default_channels
+from controller.analysis.stack import stack_aligned
+from controller.errors import InputError, PrecessError
 from controller.export.iaga2002 import StationHeader, gamma_comment, grid_means, interval_type, write_iaga2002
 from controller.export.jcampdx import FidForExport, jcampdx_lines
 from controller.export.npz import MAX_SAMPLE_BYTES, shot_arrays, write_npz
@@ -113,20 +113,25 @@ def export_jcampdx(store: Store, sel: Selection, out: str | Path, shot_index: in
     if not chosen:
         what = f"shot {shot_index}" if shot_index is not None else "good shot"
         raise InputError(f"run {runs[0]}: no {what} with raw samples in the selection (compacted?)")
-    windows = [window_of(s.samples, s.channel_names, s.sample_rate_hz, s.acquire_start_sample, s.acquire_samples,
-                         s.dead_time_s) for s in chosen]
-    fid = stack_windows([w.signal[w.acquire_start_sample:w.acquire_start_sample + w.acquire_samples]
-                         for w in windows])
+    signal, _ = default_channels(tuple(chosen[0].channel_names))
+    windows = [np.asarray(s.samples[signal, s.acquire_start_sample:s.acquire_start_sample + s.acquire_samples],
+                          dtype=float) for s in chosen]
     try:
-        frequency_hz = analyse_shots(windows)["frequency_hz"]
-    except (ValueError, ArithmeticError):
+        result = analyse_records(chosen)
+    except (PrecessError, ValueError, ArithmeticError, np.linalg.LinAlgError):
+        result = None
+    if result is not None and result.detected:
+        frequency_hz = result.frequency_hz
+        fid = stack_aligned(windows, list(result.shot_phases_rad), list(result.shot_amplitudes))
+    else:
         site = run["config"].get("site", {})
         frequency_hz = site.get("field_nt", 50000.0) * gamma_hz_per_nt("shielded")
-    first = windows[0]
+        fid = np.mean(windows, axis=0)
+    first = chosen[0]
     config = run["config"]
     title = f"run {runs[0]}" + (f" shot {shot_index}" if shot_index is not None else f" stack of {len(chosen)}")
     export = FidForExport(title=title, signal_v=fid, sample_rate_hz=first.sample_rate_hz,
-                          first_time_s=(first.acquire_start_sample - first.time_zero_sample) / first.sample_rate_hz,
+                          first_time_s=first.dead_time_s,
                           observe_frequency_hz=frequency_hz, averages=len(chosen),
                           origin=str(config.get("site", {}).get("name", "unknown site")),
                           owner="precess user", instrument=str(config.get("rig", {}).get("name", "unknown rig")),
