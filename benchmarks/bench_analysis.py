@@ -28,7 +28,6 @@ def _fmt(value: float | None, width: int = 7) -> str:
 
 
 def main(argv: list[str] | None = None) -> int:
-    argv = sys.argv[1:] if argv is None else argv
     trials = int(argv[0]) if argv else 60
     started = time.perf_counter()
     print(f"FID analysis vs the Cramer-Rao bound of the full model ({trials} records per row, 1 s at 48 kHz)")
@@ -65,4 +64,4 @@ def main(argv: list[str] | None = None) -> int:
 
 
 if __name__ == "__main__":
-    sys.exit(main())
+    sys.exit(main(sys.argv[1:]))

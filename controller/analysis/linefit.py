@@ -259,12 +259,12 @@ def _shot_line(s: _Shot, coef: np.ndarray, res: np.ndarray, basis: np.ndarray, j
     # per real component var = N sigma^2 / 2, so sigma^2 = 2 RSS / (dof N)
     noise_sd = math.sqrt(2.0 * float(np.sum(np.abs(res_c) ** 2)) / dof / d.n_samples)
     line = ShotLine(amp0, math.sqrt(max(var, 0.0)), math.atan2(math.sin(phase), math.cos(phase)), noise_sd,
-                    coef / 1.0, s.near, s.bins, res_c, fid_model, nuisance_model)
+                    np.array(coef), s.near, s.bins, res_c, fid_model, nuisance_model)
     return line, g_beta, k
 
 
 def window_half_width_hz(shots: list[ShotSpectrum], rate: float) -> float:
-    """W = max(30 Hz, 24 bins, 20 FWHM linewidths r / pi) for the shots' coarsest bin spacing."""
+    """W = max(30 Hz, 24 bins, 20 Lorentzian half-widths r / (2 pi)) for the shots' coarsest bin spacing."""
     df = max(s.sample_rate_hz / s.n_samples for s in shots)
     linewidth_hz = max(rate, 0.0) / (2 * math.pi)
     return max(MIN_HALF_WIDTH_HZ, MIN_HALF_WIDTH_BINS * df, LINEWIDTHS_IN_WINDOW * linewidth_hz)
@@ -274,7 +274,7 @@ def fit_line(shots: list[ShotSpectrum], frequency_start_hz: float, rate_start_pe
              weights: list[float] | None = None) -> LineFit:
     """Fit (f, r) and every shot's coefficients near frequency_start_hz (module docstring).
 
-    The window half-width W is max(30 Hz, 24 bins, 20 FWHM linewidths r/pi); the fit is
+    The window half-width W is max(30 Hz, 24 bins, 20 half-widths r/(2 pi)); the fit is
     repeated once when the fitted r asks for a wider window.  weights (1/noise sd per shot)
     default to 1.
     """

@@ -29,7 +29,7 @@ For the set of shots:
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass, replace
+from dataclasses import dataclass
 
 import numpy as np
 from scipy.fft import rfft
@@ -239,8 +239,3 @@ def analyse_shots(shots: list[ShotData], options: AnalysisOptions | None = None,
     """prepare_shot on every shot, then analyse_prepared."""
     options = options or AnalysisOptions()
     return analyse_prepared([prepare_shot(s, options) for s in shots], options, display)
-
-
-def with_defaults(options: AnalysisOptions, **changes: object) -> AnalysisOptions:
-    """A copy of options with some fields changed."""
-    return replace(options, **changes)
