@@ -12,8 +12,14 @@ import os
 import signal
 import sys
 
-from controller import __version__
-from controller.errors import PrecessError
+# The arrays here are small (a few hundred columns at most): BLAS threads cost more in start-up
+# and contention than they save, and a second core is better left to the engine's thread.
+# Set before numpy loads; an explicit setting in the environment wins.
+for _threads in ("OPENBLAS_NUM_THREADS", "OMP_NUM_THREADS", "MKL_NUM_THREADS"):
+    os.environ.setdefault(_threads, "1")
+
+from controller import __version__  # noqa: E402
+from controller.errors import PrecessError  # noqa: E402
 
 EXIT_INTERRUPTED = 130
 
