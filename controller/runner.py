@@ -89,7 +89,7 @@ def _compile(spec: Any, sequence_path: str, loaded: LoadedRig, larmor_hz: float 
 def analysis_context(loaded: LoadedRig) -> AnalysisContext:
     rx = loaded.config.receive
     mains = loaded.site.mains_hz if loaded.site is not None else 50.0
-    return AnalysisContext(gain=rx.gain, highpass_hz=rx.highpass_hz, mains_hz=mains)
+    return AnalysisContext(gain=rx.gain, highpass_hz=rx.highpass_hz, mains_hz=mains, full_scale_v=rx.adc_full_scale_v)
 
 
 def finish_run(prepared: PreparedRun, loaded: LoadedRig, store: Store, run_id: str, now_s: float) -> dict[str, Any]:

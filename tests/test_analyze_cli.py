@@ -78,7 +78,9 @@ def test_stored_run_through_analyze(tmp_path, capsys):
     assert main(["analyze", "--db", str(db), "--run", "latest", "--json"]) == 0
     result = json.loads(capsys.readouterr().out)
     assert result["shots"] == 2 and result["detected"]
-    assert result["frequency_hz"] == pytest.approx(stored["frequency_hz"], abs=1e-9)  # same functions, same answer
+    # the same functions; the run searched +/-20 % around the predicted Larmor frequency, analyze the
+    # default band, so the hum model holds a few more harmonics: the answers agree to 1 % of an sd
+    assert result["frequency_hz"] == pytest.approx(stored["frequency_hz"], abs=0.01 * result["frequency_sd_hz"])
     assert result["dead_time_s"] == pytest.approx(0.015)
     assert main(["analyze", "--db", str(db), "--run", stored["run_id"]]) == 0
     assert "nT" in capsys.readouterr().out

@@ -21,14 +21,14 @@ from typing import Any, Callable
 import numpy as np
 
 from controller.analysis import noise as noise_analysis
-from controller.analysis.demodulate import principal_axis_projection, rotate_receiver_phase
+from controller.analysis.demodulate import principal_axis_projection
 from controller.analysis.echoes import echo_table
-from controller.analysis.fid_entry import analyse_fid_windows
+from controller.analysis.fid_entry import analyse_fid_shots, fid_shot
 from controller.analysis.nutation import b1_rot_per_volt, fit_nutation
 from controller.analysis.relaxation import fit_exponential
-from controller.analysis.run_analysis import DEFAULT_BAND_HZ, window_of
+from controller.analysis.pipeline import DEFAULT_BAND_HZ
 from controller.analysis.series import series_amplitudes
-from controller.analysis.shots import ShotLike, channel, good_shots, receiver_phase_rad
+from controller.analysis.shots import ShotLike, channel, good_shots
 from controller.sequences.timeline import Pulse, Timeline
 
 
@@ -39,9 +39,11 @@ class AnalysisContext:
     gain: float = 1.0
     highpass_hz: float = 0.0
     mains_hz: float = 50.0
+    full_scale_v: float | None = None  # the converter's full scale (overload blanking)
 
 
-def _band(timeline: Timeline) -> tuple[float, float]:
+def fid_band(timeline: Timeline) -> tuple[float, float]:
+    """+/-20 % around the timeline's Larmor frequency, else the Earth's-field band."""
     f = timeline.larmor_hz
     return (0.8 * f, 1.2 * f) if f else DEFAULT_BAND_HZ
 
@@ -52,7 +54,7 @@ def _input_v(adc_v: float, frequency_hz: float, ctx: AnalysisContext) -> float:
     return adc_v / response
 
 
-def headline(quantity: str, value: float, sd: float, unit: str, text: str) -> dict[str, Any]:
+def headline(quantity: str, value: float | None, sd: float | None, unit: str, text: str) -> dict[str, Any]:
     return {"quantity": quantity, "value": value, "sd": sd, "unit": unit, "text": text}
 
 
@@ -62,19 +64,22 @@ def _pm(value: float, sd: float, scale: float, unit: str, digits: int = 3) -> st
 
 # ---- kinds ---------------------------------------------------------------------------------
 def analyse_fid(timeline: Timeline, spec: Any, shots: list[ShotLike], ctx: AnalysisContext) -> dict[str, Any]:
-    windows = []
-    for plan, shot in good_shots(timeline, shots):
-        signal = rotate_receiver_phase(channel(shot), receiver_phase_rad(plan))
-        windows.append(window_of(signal[None, :], ("signal",), shot.sample_rate_hz, shot.acquire_start_sample,
-                                 shot.acquire_samples, shot.dead_time_s))
-    if not windows:
+    data = [fid_shot(plan, shot, ctx.full_scale_v) for plan, shot in good_shots(timeline, shots)]
+    if not data:
         raise ValueError("no usable shots")
-    r = analyse_fid_windows(windows, _band(timeline))
-    r["headline"] = headline("field", r["field_nt"], r["field_sd_nt"], "nT",
-                             f"f = {_pm(r['frequency_hz'], r['frequency_sd_hz'], 1, 'Hz', 4)}, "
-                             f"B = {_pm(r['field_nt'], r['field_sd_nt'], 1, 'nT', 2)}, "
-                             f"T2* = {_pm(r['t2star_s'], r['t2star_sd_s'], 1, 's')}, SNR {r['snr']:.1f}")
+    r = analyse_fid_shots(data, fid_band(timeline))
+    r["headline"] = fid_headline(r)
     return r
+
+
+def fid_headline(r: dict[str, Any]) -> dict[str, Any]:
+    """The field with f, T2* and SNR; or why there is no FID."""
+    if not r["detected"]:
+        return headline("field", None, None, "nT", f"no FID detected ({r['detection_reason']})")
+    return headline("field", r["field_nt"], r["field_sd_nt"], "nT",
+                    f"f = {_pm(r['frequency_hz'], r['frequency_sd_hz'], 1, 'Hz', 4)}, "
+                    f"B = {_pm(r['field_nt'], r['field_sd_nt'], 1, 'nT', 2)}, "
+                    f"T2* = {_pm(r['t2star_s'], r['t2star_sd_s'], 1, 's')}, SNR {r['snr']:.1f}")
 
 
 def analyse_echo(timeline: Timeline, spec: Any, shots: list[ShotLike], ctx: AnalysisContext) -> dict[str, Any]:
@@ -116,7 +121,7 @@ def analyse_cpmg(timeline: Timeline, spec: Any, shots: list[ShotLike], ctx: Anal
 
 
 def _series(timeline: Timeline, shots: list[ShotLike]) -> tuple[Any, np.ndarray, dict[str, Any]]:
-    amps = series_amplitudes(timeline, shots, _band(timeline))
+    amps = series_amplitudes(timeline, shots, fid_band(timeline))
     signed, axis = principal_axis_projection(amps.amplitudes)
     details = {"series": timeline.series_name, "series_unit": timeline.series_unit, "values": amps.values.tolist(),
                "amplitudes_v": signed.tolist(), "amplitude_sd_v": amps.amplitude_sd.tolist(),

@@ -64,7 +64,8 @@ def run(args: argparse.Namespace) -> int:
         for note in prepared.timeline.notes:
             print(f"note: {note}", file=out)
         engine = supervised_engine(loaded, rig, clock, store, latch)
-        engine.best_effort_sinks.append(Progress(out, prepared.timeline, prepared.spec))
+        engine.best_effort_sinks.append(Progress(out, prepared.timeline, prepared.spec,
+                                                 full_scale_v=loaded.config.receive.adc_full_scale_v))
         outcome = engine.run(prepared.timeline, config_snapshot(loaded, prepared.spec, args.sequence))
         summary: dict[str, Any] = {"run_id": outcome.run_id, "exit_status": outcome.exit_status,
                                    "reason": outcome.reason, "db": str(Path(args.db))}
