@@ -86,6 +86,14 @@ def test_stored_run_through_analyze(tmp_path, capsys):
     assert "nT" in capsys.readouterr().out
 
 
+def test_a_noise_run_is_not_analysed_as_an_fid(tmp_path, capsys):
+    db = tmp_path / "noise.sqlite"
+    noise = ROOT / "configs" / "sequences" / "noise-survey.toml"
+    assert main(["run", str(noise), "--rig", str(RIG), "--db", str(db), "--shots", "1"]) == 0
+    capsys.readouterr()
+    assert "is a noise run" in _one_line_error(capsys, ["analyze", "--db", str(db), "--run", "latest"])
+
+
 def test_noise_only_recording_reports_no_detection(tmp_path, capsys):
     rng = np.random.default_rng(3)
     path = tmp_path / "noise.wav"

@@ -14,6 +14,9 @@ from controller.errors import InputError
 from controller.store import Store
 
 
+NOT_FID_KINDS = ("echo", "cpmg", "noise")
+
+
 def band(text: str) -> tuple[float, float]:
     """LOW:HIGH in Hz."""
     try:
@@ -90,6 +93,10 @@ def _load(args: argparse.Namespace) -> tuple[list[ShotData], str, str]:
             raise InputError(f"{db}: no runs stored")
         run_id = runs[-1]["run_id"]
     shots, run = shots_from_store(db, run_id)
+    kind = run["config"].get("sequence", {}).get("kind", "fid")
+    if kind in NOT_FID_KINDS:
+        raise InputError(f"run {run_id} is a {kind} run: analyze fits FIDs (fid, t1 and nutation runs); "
+                         f"its own result is in `precess runs --db {db} --json`")
     return shots, f"run {run_id} ({run['sequence_name']})", "V"
 
 
