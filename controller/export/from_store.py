@@ -15,7 +15,6 @@ import numpy as np
 
 from controller import __version__
 from controller.analysis.sources import analyse_records, default_channels
-from controller.analysis.stack import stack_aligned
 from controller.errors import InputError, PrecessError
 from controller.export.iaga2002 import StationHeader, gamma_comment, grid_means, interval_type, write_iaga2002
 from controller.export.jcampdx import FidForExport, jcampdx_lines
@@ -122,11 +121,10 @@ def export_jcampdx(store: Store, sel: Selection, out: str | Path, shot_index: in
         result = None
     if result is not None and result.detected:
         frequency_hz = result.frequency_hz
-        fid = stack_aligned(windows, list(result.shot_phases_rad), list(result.shot_amplitudes))
     else:
         site = run["config"].get("site", {})
         frequency_hz = site.get("field_nt", 50000.0) * gamma_hz_per_nt("shielded")
-        fid = np.mean(windows, axis=0)
+    fid = np.mean(windows, axis=0)  # the raw stack: shots share the switch-off's phase
     first = chosen[0]
     config = run["config"]
     title = f"run {runs[0]}" + (f" shot {shot_index}" if shot_index is not None else f" stack of {len(chosen)}")
