@@ -7,6 +7,7 @@ from dataclasses import dataclass, replace
 from pathlib import Path
 from typing import Any
 
+from controller.config.hardware import check_hardware
 from controller.config.schema import FidSequence, RigConfig, SampleConfig, SiteConfig
 from controller.config.sequences import (
     CpmgSequence, EchoSequence, NoiseSequence, NutationSequence, T1EarthSequence, T1PolariseSequence,
@@ -67,6 +68,7 @@ def load_rig(path: str | Path) -> LoadedRig:
     """Load a rig file and, for a simulated rig, the site and sample files it names."""
     rig = build(RigConfig, read_toml(path), str(path))
     _check_coil_winding(rig, str(path))
+    check_hardware(str(path), rig)
     site = sample = None
     if rig.simulator is not None:
         base = Path(path).parent

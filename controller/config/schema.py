@@ -8,6 +8,9 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 
+from controller.config.hardware import (
+    TRANSCEIVER_DRIVERS, SUPPLY_DRIVERS, BoardConfig, ScpiDaqConfig, ScpiSupplyConfig, SoundCardConfig,
+)
 from controller.config.strict import field
 
 
@@ -116,10 +119,13 @@ class ReceiveConfig:
 
 @dataclass(frozen=True, kw_only=True)
 class DriverConfig:
-    """Which driver serves one role, and its settings (driver-specific keys live in `options`)."""
+    """Which driver serves one role; a real driver's settings sit in the table named after it."""
 
-    driver: str = field("simulated", choices=("simulated",))
+    driver: str = field("simulated", choices=tuple(dict.fromkeys(TRANSCEIVER_DRIVERS + SUPPLY_DRIVERS)))
     sample_rate_hz: float = field(48000.0, choices=(44100.0, 48000.0, 96000.0, 192000.0))
+    soundcard: SoundCardConfig | None = field(None, help="transceiver.driver = 'soundcard'")
+    scpi_daq: ScpiDaqConfig | None = field(None, help="transceiver.driver = 'scpi_daq'")
+    scpi: ScpiSupplyConfig | None = field(None, help="supply.driver = 'scpi'")
 
 
 @dataclass(frozen=True, kw_only=True)
@@ -150,6 +156,7 @@ class RigConfig:
     receive: ReceiveConfig = field(default_factory=ReceiveConfig)
     transceiver: DriverConfig = field(default_factory=DriverConfig)
     supply: DriverConfig = field(default_factory=DriverConfig)
+    board: BoardConfig | None = field(None, help="switch/sensor board; omit on a simulated rig")
     simulator: SimulatorConfig | None = field(None)
     description: str = field("")
     supervisor: SupervisorConfig = field(default_factory=SupervisorConfig)
