@@ -34,6 +34,7 @@ from controller.sequences.render import render_segment
 from controller.sequences.timeline import Polarise, ShotPlan, SwitchOff, Timeline
 from controller.supervisor.machine import InterlockTrip, Supervisor
 from controller.thermal_plan import current_profile
+from drivers.protocols import TimedSegmentBoard
 
 log = logging.getLogger(__name__)
 Sink = Callable[[Record], None]
@@ -152,7 +153,8 @@ class Engine:
         try:
             self._emit(RunStarted(run_id=run_id, started_at_s=self.clock.now(), sequence_name=timeline.sequence_name,
                                   sequence_kind=timeline.sequence_kind, shots_planned=len(timeline.shots),
-                                  sample_rate_hz=timeline.sample_rate_hz, config=config_snapshot,
+                                  sample_rate_hz=timeline.sample_rate_hz,
+                                  config={**config_snapshot, "drivers": self.rig.describe()},
                                   software_version=__version__, simulated=self.rig.simulated))
             started = True
             for shot in timeline.shots:
@@ -198,7 +200,11 @@ class Engine:
             self._status(run_id)
             self._wait(run_id, shot.segment_start_s - polarise.start_s)
         self._check_stop()
+        timed_board = rig.board if polarise is not None and isinstance(rig.board, TimedSegmentBoard) else None
+        if timed_board is not None:
+            timed_board.arm_segment(waveforms.gate, waveforms.tx, sample_rate_hz)
         recording = rig.transceiver.play_and_record(waveforms.gate, waveforms.tx)
+        board_bad, board_notes = timed_board.finish_segment() if timed_board is not None else (False, ())
         rig.supply.output_off()
         if rig.board is not None:
             rig.board.set_path("idle")
@@ -213,7 +219,8 @@ class Engine:
             sample_rate_hz=recording.sample_rate_hz, channel_names=recording.channel_names, samples=samples,
             switch_off_sample=switch_off_sample, acquire_start_sample=acquire_start,
             acquire_samples=acquire_samples, dead_time_s=(acquire_start - last_edge) / sample_rate_hz,
-            latency_samples=recording.latency_samples, bad=recording.overrun, notes=recording.notes))
+            latency_samples=recording.latency_samples, bad=recording.overrun or board_bad,
+            notes=recording.notes + board_notes))
         self._shots_stored += 1
         recovery = shot.duration_s - shot.segment_start_s - shot.segment_samples / sample_rate_hz
         self._wait(run_id, recovery)

@@ -67,3 +67,16 @@ class SwitchBoard(Protocol):
     def read_sensors(self) -> dict[str, float]: ...
 
     def describe(self) -> dict[str, Any]: ...
+
+
+@runtime_checkable
+class TimedSegmentBoard(Protocol):
+    """A board that runs the switch-off -> transmit -> receive segment on its own timer (optional).
+
+    The engine arms it just before the transceiver plays the segment and asks afterwards
+    how it went; `finish_segment` returns (bad, notes) for the shot.
+    """
+
+    def arm_segment(self, gate: np.ndarray, tx: np.ndarray, sample_rate_hz: float) -> None: ...
+
+    def finish_segment(self) -> tuple[bool, tuple[str, ...]]: ...

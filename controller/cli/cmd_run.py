@@ -67,6 +67,7 @@ def run(args: argparse.Namespace) -> int:
         engine.best_effort_sinks.append(Progress(out, prepared.timeline, prepared.spec,
                                                  full_scale_v=loaded.config.receive.adc_full_scale_v))
         outcome = engine.run(prepared.timeline, config_snapshot(loaded, prepared.spec, args.sequence))
+        rig.close()
         summary: dict[str, Any] = {"run_id": outcome.run_id, "exit_status": outcome.exit_status,
                                    "reason": outcome.reason, "db": str(Path(args.db))}
         summary.update(finish_run(prepared, loaded, store, outcome.run_id, clock.now()))

@@ -89,6 +89,7 @@ class GeneratorCommands:
 
     identify: str = field("*IDN?")
     clear: str = field("*CLS")
+    error_query: str = field("SYST:ERR?", help="empty = the generator has no error queue")
     function_sine: str = field("SOUR1:FUNC SIN")
     frequency: str = field("SOUR1:FREQ {value:.6f}")
     amplitude_vpp: str = field("SOUR1:VOLT {value:.4f}")
