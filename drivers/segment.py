@@ -18,7 +18,7 @@ class SegmentEdges:
     """Sample indices within the segment (counted from its first sample)."""
 
     n_samples: int
-    switch_off_sample: int  # first sample with gate < 1 (n_samples if the gate never falls)
+    switch_off_sample: int  # the ramp's first sample: the last with gate 1 (n_samples if the gate never falls)
     ramp_end_sample: int  # first sample at or after switch-off with gate <= 0
     shape: str  # "linear" or "exponential"
     tx_windows: tuple[tuple[int, int], ...]  # (start, stop) of each run of non-zero transmit samples
@@ -34,7 +34,7 @@ def segment_edges(gate: np.ndarray, tx: np.ndarray) -> SegmentEdges:
     t = np.asarray(tx, dtype=float)
     n = int(g.size)
     below = np.flatnonzero(g < 1.0)
-    k_off = int(below[0]) if below.size else n
+    k_off = max(0, int(below[0]) - 1) if below.size else n
     zero = np.flatnonzero(g[k_off:] <= 0.0)
     k_end = k_off + int(zero[0]) if zero.size else n
     mid = (k_off + k_end) // 2

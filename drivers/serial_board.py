@@ -145,10 +145,10 @@ class SerialBoard:
                         self._reconnect("port closed")
                     reply = self._exchange(word, args)
                     break
-                except _NoReply:
+                except _NoReply as exc:
                     if last:
                         raise DriverError(f"serial board on {self.cfg.port}: no reply to {word} within "
-                                          f"{self.cfg.reply_timeout_s:g} s") from None
+                                          f"{self.cfg.reply_timeout_s:g} s{exc}") from None
                 except OSError as exc:
                     self._drop_port()
                     if last:
@@ -169,15 +169,18 @@ class SerialBoard:
         self._last_io = time.monotonic()
         deadline = time.monotonic() + self.cfg.reply_timeout_s
         strays = 0
+        garbage = ""
         while True:
             line = self._port.readline()
             if not line or not line.endswith(b"\n"):
                 if time.monotonic() >= deadline:
-                    raise _NoReply
+                    raise _NoReply(f" (only garbage came back: {garbage}; check the port and the baud rate "
+                                   f"{self.cfg.baud})" if garbage else "")
                 continue
             try:
                 frame = bp.decode(line)
             except bp.FrameError as exc:
+                garbage = str(exc)
                 strays += 1
                 if strays > MAX_STRAY_LINES:
                     raise DriverError(f"serial board on {self.cfg.port}: only garbage in reply to {word} "

@@ -66,3 +66,18 @@ def two_run_template(tmp_path_factory):
     path = tmp_path_factory.mktemp("stores") / "two-runs.sqlite"
     run_a, run_b = two_run_store(path)
     return path, run_a, run_b
+
+
+def pytest_addoption(parser: pytest.Parser) -> None:
+    parser.addoption("--hardware", action="store_true", default=False,
+                     help="also run tests that need real instruments attached (marked 'hardware')")
+
+
+def pytest_collection_modifyitems(config: pytest.Config, items: list[pytest.Item]) -> None:
+    """Real-hardware tests are opt-in: skipped unless --hardware is given."""
+    if config.getoption("--hardware"):
+        return
+    skip = pytest.mark.skip(reason="needs real hardware; run with --hardware")
+    for item in items:
+        if "hardware" in item.keywords:
+            item.add_marker(skip)
