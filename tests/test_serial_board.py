@@ -73,7 +73,7 @@ def test_watchdog_turns_the_coil_off_when_the_host_goes_quiet(board_emulator):
     last_frame = time.monotonic()
     assert wait_for(lambda: board_emulator.path == "idle", timeout_s=2.0)
     quiet_s = time.monotonic() - last_frame
-    assert 0.25 <= quiet_s < 0.25 + 0.1  # the configured watchdog, plus the emulator's tick and scheduling
+    assert 0.25 <= quiet_s < 0.25 + 0.15  # the configured watchdog, plus the emulator tick and scheduling
     (when, path, why) = board_emulator.history()[-1]
     assert (path, why) == ("idle", "watchdog") and board_emulator.state.tripped
     port.write(bp.encode(">", 9, "PATH", "polarise"))
@@ -100,7 +100,7 @@ def test_a_killed_host_process_leaves_the_coil_off(board_emulator):
         host.kill()
         killed = time.monotonic()
         assert wait_for(lambda: board_emulator.path == "idle", timeout_s=2.0)
-        assert time.monotonic() - killed < 0.3 + 0.15
+        assert time.monotonic() - killed < 0.3 + 0.2
     finally:
         host.kill()
         host.wait()
