@@ -30,6 +30,7 @@ from drivers.protocols import Recording
 from drivers.segment import segment_edges
 
 MARKER_BURST_S = 0.001
+WARM_UP_S = 0.3
 STALL_MARGIN_S = 2.0
 CLIP_FRACTION = 0.999
 
@@ -127,6 +128,8 @@ class SoundCardTransceiver:
             self._stream = None
             raise DriverError(f"sound card {self.device_name!r}: cannot open a full-duplex stream of "
                               f"{self.n_in} in / {self.n_out} out at {self.sample_rate_hz:g} Hz ({exc})") from None
+        # let the stream settle (start-up glitches, audio-server graph changes) before anything counts
+        self.play_raw(np.zeros((int(round(WARM_UP_S * self.sample_rate_hz)), self.n_out), dtype=np.float32), 0)
         return self
 
     def close(self) -> None:

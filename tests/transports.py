@@ -21,7 +21,7 @@ import pytest
 from drivers.emulators.board import BoardEmulator
 
 JACK_RATE_HZ = 48000
-JACK_PERIOD = 256
+JACK_PERIOD = 1024
 ROOT = Path(__file__).resolve().parent.parent
 
 
@@ -41,7 +41,9 @@ class JackServer:
     extra_clients: list[Any] = field(default_factory=list)
 
     def portaudio_ports(self, output: bool) -> list[Any]:
-        return self.client.get_ports("PortAudio", is_audio=True, is_output=output, is_input=not output)
+        """The open stream's ports in channel order (PortAudio numbers them on across streams)."""
+        ports = self.client.get_ports("PortAudio", is_audio=True, is_output=output, is_input=not output)
+        return sorted(ports, key=lambda p: int(p.name.rsplit("_", 1)[-1]))
 
     def unwire_portaudio(self) -> None:
         for port in self.client.get_ports("PortAudio", is_audio=True):

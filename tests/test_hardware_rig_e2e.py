@@ -1,0 +1,132 @@
+"""End to end on real transports: the Heron-2 rig file on the JACK loopback, the pty board and the TCP supply.
+
+The analog front end (tests/analog_frontend.py) turns the card's switch-off marker into the
+board's trigger and answers with a known FID, so the whole chain - rig file, build_rig,
+engine, board timed segment, SCPI ramp, full-duplex stream, store, analysis - is checked
+against a frequency we chose.
+"""
+
+from __future__ import annotations
+
+import json
+import re
+import sqlite3
+import time
+from pathlib import Path
+
+import pytest
+
+from analog_frontend import AnalogFrontEnd, FidTruth
+from controller.cli.main import main
+from controller.clock import WallClock
+from controller.config.loader import load_rig
+from controller.engine import Engine
+from controller.records import ShotAcquired
+from controller.rig import build_rig
+from controller.sequences.fid import compile_fid
+from controller.config.loader import load_sequence
+from transports import (JACK_PERIOD, JACK_RATE_HZ, ROOT, board_emulator, jack_server,  # noqa: F401 - fixtures
+                        supply_process)
+
+pytestmark = pytest.mark.timeout(120)
+SEQUENCE = """
+name = "fid-loopback"
+kind = "fid"
+shots = 3
+recovery_s = 0.2
+[polarise]
+current_a = 1.5
+duration_s = 0.4
+[switch_off]
+ramp_s = 0.0002
+[receive]
+dead_time_s = 0.01
+acquire_s = 0.6
+"""
+
+
+def rig_file(tmp_path: Path, board_port: str, supply_resource: str) -> Path:
+    """configs/rigs/heron-2.toml with its device, port and address pointed at this machine's emulators."""
+    text = (ROOT / "configs/rigs/heron-2.toml").read_text()
+    text = re.sub(r'device = "USB Audio".*', 'device = "system"', text)
+    text = text.replace('host_api = "ALSA"', 'host_api = "JACK"')
+    text = re.sub(r'resource = ".*"', f'resource = "{supply_resource}"', text)
+    text = re.sub(r'port = "/dev/serial.*"', f'port = "{board_port}"', text)
+    text = text.replace("ramp_step_s = 0.02", "ramp_step_s = 0.005")
+    path = tmp_path / "heron-2-loopback.toml"
+    path.write_text(text)
+    (tmp_path / "fid.toml").write_text(SEQUENCE)
+    return path
+
+
+@pytest.fixture
+def frontend(jack_server, board_emulator):
+    import jack
+
+    fe = AnalogFrontEnd(jack, jack_server.name, JACK_RATE_HZ, board=board_emulator).start()
+    yield fe
+    fe.close()
+
+
+def test_fid_runs_end_to_end_on_real_transports(tmp_path, frontend, board_emulator, supply_process, capsys):
+    rig = rig_file(tmp_path, str(board_emulator.link), supply_process.resource())
+    frontend.mode = "loopback"
+    assert main(["rig", "calibrate", str(rig)]) == 0
+    latency = (tmp_path / "heron-2-loopback.latency.toml").read_text()
+    assert f"latency_samples = {JACK_PERIOD}" in latency
+
+    frontend.mode = "nmr"
+    assert main(["rig", "test", str(rig)]) == 0
+    capsys.readouterr()
+    db = tmp_path / "runs.sqlite"
+    code = main(["run", str(tmp_path / "fid.toml"), "--rig", str(rig), "--db", str(db), "--json"])
+    captured = capsys.readouterr()
+    assert code == 0, captured.err
+    summary = json.loads(captured.out)
+    assert summary["exit_status"] == "completed" and summary["shots"] == 3
+    assert "CAUTION: this run energises a real coil" in captured.err
+    # the fitted frequency is the one the front end injected (a pure tone: far better than 0.01 Hz)
+    assert summary["frequency_hz"] == pytest.approx(FidTruth().frequency_hz, abs=0.01)
+    assert frontend.markers_seen >= 3
+
+    segments = [w for _, p, w in board_emulator.history() if w.startswith("segment")]
+    assert segments.count("segment switch-off") == 3 and segments.count("segment done") == 3
+    assert board_emulator.path == "idle"
+    with sqlite3.connect(db) as con:
+        rows = con.execute("SELECT latency_samples, bad, notes FROM shots").fetchall()
+        config = json.loads(con.execute("SELECT config_json FROM runs").fetchone()[0])
+    assert all(latency_samples == JACK_PERIOD for latency_samples, _, _ in rows)
+    assert config["drivers"]["transceiver"]["latency_calibration"]["latency_samples"] == JACK_PERIOD
+    assert config["drivers"]["board"]["board_id"] == "HERON2-SB01"
+    assert "KPS-6005" in config["drivers"]["supply"]["identity"]
+
+
+def test_a_supply_that_vanishes_mid_run_stops_the_engine_with_the_rig_safe(tmp_path, frontend, board_emulator,
+                                                                          supply_process):
+    rig_path = rig_file(tmp_path, str(board_emulator.link), supply_process.resource())
+    loaded = load_rig(rig_path)
+    clock = WallClock()
+    rig = build_rig(loaded, clock)
+    records = []
+
+    def pull_the_plug(record):
+        records.append(record)
+        if isinstance(record, ShotAcquired) and record.shot_index == 0:
+            supply_process.kill()
+
+    try:
+        engine = Engine(rig, clock)
+        engine.best_effort_sinks.append(pull_the_plug)
+        timeline = compile_fid(load_sequence(tmp_path / "fid.toml"), JACK_RATE_HZ)
+        started = time.monotonic()
+        outcome = engine.run(timeline, {})
+        assert time.monotonic() - started < 10
+    finally:
+        rig.close()
+    assert outcome.exit_status == "failed"
+    assert sum(isinstance(r, ShotAcquired) for r in records) == 1
+    assert "SCPI supply at TCPIP0::127.0.0.1" in outcome.reason
+    finished = records[-1]
+    assert any("supply output off" in f for f in finished.safe_state_failures)
+    assert not any("coil path idle" in f or "transmitter" in f for f in finished.safe_state_failures)
+    assert board_emulator.path == "idle"  # the board, not the vanished supply, keeps the coil dead
