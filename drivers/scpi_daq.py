@@ -126,7 +126,7 @@ class ScpiDaqTransceiver:
             vpp = 2.0 * burst.amplitude_v
             if vpp > self.cfg.max_output_vpp:
                 raise DriverError(f"SCPI DAQ: burst of {vpp:.3g} Vpp exceeds max_output_vpp {self.cfg.max_output_vpp:g}")
-            cycles = max(1, int(round(burst.n_samples / fs * burst.frequency_hz)))
+            cycles = max(1, int(math.floor(burst.n_samples / fs * burst.frequency_hz + 1e-9)))  # never past the pulse
             for command, value in ((g.function_sine, None), (g.frequency, burst.frequency_hz), (g.amplitude_vpp, vpp),
                                    (g.phase_deg, math.degrees(burst.phase_at_start_rad) % 360.0),
                                    (g.burst_cycles, cycles), (g.burst_on, None), (g.trigger_delay_s, start / fs)):

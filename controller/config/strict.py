@@ -55,6 +55,8 @@ def _convert(value: Any, tp: Any, file: str, key: str) -> Any:
         args = [a for a in typing.get_args(tp) if a is not type(None)]
         if value is None and type(None) in typing.get_args(tp):
             return None
+        if len(args) == 1:  # Optional[X]: X's own error (e.g. a bad key inside a table) is the useful one
+            return _convert(value, args[0], file, key)
         errors = []
         for arg in args:
             try:
