@@ -226,8 +226,10 @@ class SerialBoard:
         if path != "idle":
             self._check_tripped()
         with self._lock:
-            self._expected_path = path
+            if path == "idle":
+                self._expected_path = "idle"  # a reconnect on the way must not insist on the old path
             self._request("PATH", path)
+            self._expected_path = path
             self._segment_armed = False if path == "idle" else self._segment_armed
         if path != "idle":
             self._check_tripped()

@@ -76,14 +76,18 @@ def test_fid_runs_end_to_end_on_real_transports(tmp_path, frontend, board_emulat
     assert f"latency_samples = {JACK_PERIOD}" in latency
 
     frontend.mode = "nmr"
-    assert main(["rig", "test", str(rig)]) == 0
     capsys.readouterr()
+    code = main(["rig", "test", str(rig)])
+    report = capsys.readouterr().out
+    failures = [line for line in report.splitlines() if line.strip().startswith("FAIL")]
+    # an xrun of the dummy backend on a busy machine is reported as such; nothing else may fail
+    assert code == 0 or all("over/underrun" in line for line in failures), report
     db = tmp_path / "runs.sqlite"
     code = main(["run", str(tmp_path / "fid.toml"), "--rig", str(rig), "--db", str(db), "--json"])
     captured = capsys.readouterr()
     assert code == 0, captured.err
     summary = json.loads(captured.out)
-    assert summary["exit_status"] == "completed" and summary["shots"] == 3
+    assert summary["exit_status"] == "completed" and summary["shots"] >= 1  # shots analysed: the good ones
     assert "CAUTION: this run energises a real coil" in captured.err
     # the fitted frequency is the one the front end injected (a pure tone: far better than 0.01 Hz)
     assert summary["frequency_hz"] == pytest.approx(FidTruth().frequency_hz, abs=0.01)
@@ -95,7 +99,10 @@ def test_fid_runs_end_to_end_on_real_transports(tmp_path, frontend, board_emulat
     with sqlite3.connect(db) as con:
         rows = con.execute("SELECT latency_samples, bad, notes FROM shots").fetchall()
         config = json.loads(con.execute("SELECT config_json FROM runs").fetchone()[0])
-    assert all(latency_samples == JACK_PERIOD for latency_samples, _, _ in rows)
+    assert len(rows) == 3 and all(latency_samples == JACK_PERIOD for latency_samples, _, _ in rows)
+    for _, bad, notes in rows:  # a shot is bad only for an audio xrun, and then it says so
+        assert not bad or "over/underrun" in notes
+    assert summary["shots"] == sum(1 for _, bad, _ in rows if not bad)
     assert config["drivers"]["transceiver"]["latency_calibration"]["latency_samples"] == JACK_PERIOD
     assert config["drivers"]["board"]["board_id"] == "HERON2-SB01"
     assert "KPS-6005" in config["drivers"]["supply"]["identity"]
@@ -130,3 +137,36 @@ def test_a_supply_that_vanishes_mid_run_stops_the_engine_with_the_rig_safe(tmp_p
     assert any("supply output off" in f for f in finished.safe_state_failures)
     assert not any("coil path idle" in f or "transmitter" in f for f in finished.safe_state_failures)
     assert board_emulator.path == "idle"  # the board, not the vanished supply, keeps the coil dead
+
+
+def test_the_board_lead_pulled_and_replugged_mid_run_does_not_stop_it(tmp_path, frontend, board_emulator,
+                                                                      supply_process):
+    import threading
+
+    from controller.records import StatusSample
+
+    loaded = load_rig(rig_file(tmp_path, str(board_emulator.link), supply_process.resource()))
+    clock = WallClock()
+    rig = build_rig(loaded, clock)
+    shots_seen = []
+    unplugs = []
+
+    def pull_and_replug(record):
+        if isinstance(record, ShotAcquired):
+            shots_seen.append(record)
+        if isinstance(record, StatusSample) and len(shots_seen) == 1 and board_emulator.link.exists():
+            board_emulator.unplug()  # during shot 2's polarisation
+            unplugs.append(record.at_s)
+            threading.Timer(0.15, board_emulator.replug).start()
+
+    try:
+        engine = Engine(rig, clock)
+        engine.best_effort_sinks.append(pull_and_replug)
+        outcome = engine.run(compile_fid(load_sequence(tmp_path / "fid.toml"), JACK_RATE_HZ), {})
+        reconnects = rig.board.reconnects
+    finally:
+        rig.close()
+    assert outcome.exit_status == "completed", outcome.reason
+    assert [s.shot_index for s in shots_seen] == [0, 1, 2] and reconnects >= 1, (outcome, unplugs)
+    assert all(not s.bad or any("over/underrun" in n for n in s.notes) for s in shots_seen)
+    assert board_emulator.path == "idle"
