@@ -108,8 +108,22 @@ def test_fid_runs_end_to_end_on_real_transports(tmp_path, frontend, board_emulat
     assert "KPS-6005" in config["drivers"]["supply"]["identity"]
 
 
-def test_a_supply_that_vanishes_mid_run_stops_the_engine_with_the_rig_safe(tmp_path, frontend, board_emulator,
-                                                                          supply_process):
+def send_raw(resource: str, message: str) -> str:
+    """Talk to an emulator on a separate connection (EMUL:FAULT ..., or a query); returns the reply line."""
+    import socket
+
+    port = int(resource.split("::")[2])
+    with socket.create_connection(("127.0.0.1", port), timeout=2) as s:
+        s.sendall((message + "\n").encode())
+        if not message.endswith("?"):
+            time.sleep(0.05)
+            return ""
+        return s.makefile().readline().strip()
+
+
+@pytest.mark.parametrize("failure", ["vanishes", "reads overload"])
+def test_a_supply_that_fails_mid_run_stops_the_engine_with_the_rig_safe(tmp_path, frontend, board_emulator,
+                                                                       supply_process, failure):
     rig_path = rig_file(tmp_path, str(board_emulator.link), supply_process.resource())
     loaded = load_rig(rig_path)
     clock = WallClock()
@@ -119,7 +133,10 @@ def test_a_supply_that_vanishes_mid_run_stops_the_engine_with_the_rig_safe(tmp_p
     def pull_the_plug(record):
         records.append(record)
         if isinstance(record, ShotAcquired) and record.shot_index == 0:
-            supply_process.kill()
+            if failure == "vanishes":
+                supply_process.kill()
+            else:
+                send_raw(supply_process.resource(), "EMUL:FAULT overrange")
 
     try:
         engine = Engine(rig, clock)
@@ -134,7 +151,12 @@ def test_a_supply_that_vanishes_mid_run_stops_the_engine_with_the_rig_safe(tmp_p
     assert sum(isinstance(r, ShotAcquired) for r in records) == 1
     assert "SCPI supply at TCPIP0::127.0.0.1" in outcome.reason
     finished = records[-1]
-    assert any("supply output off" in f for f in finished.safe_state_failures)
+    if failure == "vanishes":
+        assert any("supply output off" in f for f in finished.safe_state_failures)
+    else:
+        assert "reads overload" in outcome.reason and finished.safe_state_failures == ()
+        send_raw(supply_process.resource(), "EMUL:FAULT none")
+        assert send_raw(supply_process.resource(), "OUTP?") == "0"  # the supply's output really is off
     assert not any("coil path idle" in f or "transmitter" in f for f in finished.safe_state_failures)
     assert board_emulator.path == "idle"  # the board, not the vanished supply, keeps the coil dead
 

@@ -134,3 +134,12 @@ def test_missing_portaudio_is_one_line():
             "try:\n    import_sounddevice()\nexcept DriverError as exc:\n    print(exc)\n")
     out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, timeout=30).stdout
     assert "PortAudio library is missing" in out and "libportaudio2" in out
+
+
+def test_devices_lists_the_audio_server_serial_ports_and_visa(jack_server, capsys):
+    from controller.cli.main import main
+
+    assert main(["devices"]) == 0
+    out = capsys.readouterr().out
+    assert "sound devices" in out and "'system' on 'JACK Audio Connection Kit': 2 in, 2 out" in out
+    assert "serial ports" in out and "VISA resources" in out and "::SOCKET" in out
