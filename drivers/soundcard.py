@@ -228,7 +228,7 @@ def calibrate_latency(card: SoundCardTransceiver, output_channel: int, input_cha
         recorded, flags = card.play_raw(out, int(round(0.5 * fs)))
         if flags:
             xruns += 1
-            if xruns > repeats:
+            if xruns > 3 * repeats:
                 raise DriverError(f"sound card: over/underruns during the calibration ({flags[0]}); "
                                   "close other audio programs and retry")
             continue

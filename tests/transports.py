@@ -21,7 +21,7 @@ import pytest
 from drivers.emulators.board import BoardEmulator
 
 JACK_RATE_HZ = 48000
-JACK_PERIOD = 1024
+JACK_PERIOD = 2048
 ROOT = Path(__file__).resolve().parent.parent
 
 
