@@ -38,6 +38,7 @@ def test_the_example_rig_file_loads():
     (("watchdog_s = 1.0", "watchdog_s = 60.0"), "board.serial.watchdog_s", "allowed: 0.1 to 10.0"),
     (('trigger = "marker"', 'trigger = "sometimes"'), "board.serial.trigger", "allowed: 'marker', 'timer'"),
     (("[supply.scpi]", "[supply.scpi_typo]"), "supply.scpi_typo", "unknown key"),
+    (("compliance_v = 30.0", "compliance_v = 24.0"), "supervisor.supply_compliance_v", "differs from supply.scpi"),
 ])
 def test_mistakes_name_file_key_and_what_is_allowed(tmp_path, edit, key, fragment):
     path = write(tmp_path, HERON.replace(*edit, 1))
@@ -64,7 +65,7 @@ def test_command_maps_are_strict(tmp_path):
 def test_mixing_simulated_and_real_drivers_is_refused(tmp_path):
     sim = (ROOT / "configs/rigs/demo-sim.toml").read_text().replace("../", str(ROOT / "configs") + "/")
     text = sim.replace('[supply]\ndriver = "simulated"', '[supply]\ndriver = "scpi"\n[supply.scpi]\n'
-                       'resource = "TCPIP0::127.0.0.1::1::SOCKET"\nidentity_contains = "x"\ncompliance_v = 10.0\n'
+                       'resource = "TCPIP0::127.0.0.1::1::SOCKET"\nidentity_contains = "x"\ncompliance_v = 30.0\n'
                        'max_current_a = 5.0')
     with pytest.raises(ConfigError, match="supply.driver: mixes real .supply. and simulated"):
         load_rig(write(tmp_path, text))

@@ -139,7 +139,7 @@ def start_emulator_process(module: str, *args: str) -> EmulatorProcess:
 @pytest.fixture
 def supply_process() -> Iterator[EmulatorProcess]:
     """The coil-supply emulator as its own process (so a test can make it vanish)."""
-    emulator = start_emulator_process("drivers.emulators.scpi_supply", "--port", "0", "--resistance-ohm", "4.4",
-                                      "--inductance-h", "0.03")
+    emulator = start_emulator_process("drivers.emulators.scpi_supply", "--port", "0", "--resistance-ohm", "4.36",
+                                      "--inductance-h", "0.0116")  # the Heron-2 coil
     yield emulator
     emulator.kill()

@@ -183,6 +183,13 @@ def check_hardware(file: str, rig: Any) -> None:
                                                  f"allowed: {', '.join(map(repr, SUPPLY_DRIVERS))}")
     if rig.transceiver.soundcard is not None:
         _check_soundcard(file, rig.transceiver.soundcard)
+    supervisor = getattr(rig, "supervisor", None)
+    if rig.supply.scpi is not None and supervisor is not None \
+            and supervisor.supply_compliance_v != rig.supply.scpi.compliance_v:
+        raise ConfigError(file, "supervisor.supply_compliance_v",
+                          f"{supervisor.supply_compliance_v:g} V differs from supply.scpi.compliance_v = "
+                          f"{rig.supply.scpi.compliance_v:g} V; allowed: the same value (the supervisor judges "
+                          "'supply at its voltage limit' by it)")
     if rig.supply.scpi is not None and rig.supply.scpi.max_current_a < rig.limits.max_current_a:
         raise ConfigError(file, "limits.max_current_a", f"{rig.limits.max_current_a} exceeds the supply's rating "
                                                         f"supply.scpi.max_current_a = {rig.supply.scpi.max_current_a}")
