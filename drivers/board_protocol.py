@@ -20,6 +20,7 @@ MAX_LINE_BYTES = 200
 PATHS = ("idle", "polarise", "transmit", "receive")
 SHAPES = ("linear", "exponential")
 TRIGGERS = ("marker", "timer")
+MAX_EXTRA_TX_WINDOWS = 255  # SEGTX windows after the one in SEG
 SEGMENT_STATES = ("none", "armed", "running", "done", "timeout", "aborted")
 ERROR_CODES = ("CRC", "SYNTAX", "UNKNOWN", "RANGE", "STATE", "VERSION", "TRIPPED", "HELLO")
 

@@ -12,6 +12,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
+MAX_GAP_IN_PULSE = 2  # samples: zero runs this short inside a pulse are part of it
+
 
 @dataclass(frozen=True)
 class SegmentEdges:
@@ -21,7 +23,7 @@ class SegmentEdges:
     switch_off_sample: int  # the ramp's first sample: the last with gate 1 (n_samples if the gate never falls)
     ramp_end_sample: int  # first sample at or after switch-off with gate <= 0
     shape: str  # "linear" or "exponential"
-    tx_windows: tuple[tuple[int, int], ...]  # (start, stop) of each run of non-zero transmit samples
+    tx_windows: tuple[tuple[int, int], ...]  # (start, stop) of each pulse: runs of non-zero transmit samples
 
 
 def segment_edges(gate: np.ndarray, tx: np.ndarray) -> SegmentEdges:
@@ -41,8 +43,14 @@ def segment_edges(gate: np.ndarray, tx: np.ndarray) -> SegmentEdges:
     shape = "linear" if k_end - k_off < 2 or abs(g[mid] - 0.5) < 0.1 else "exponential"
     on = np.concatenate([[0], (t != 0).astype(np.int8), [0]])
     changes = np.flatnonzero(np.diff(on))
-    windows = tuple((int(a), int(b)) for a, b in zip(changes[0::2], changes[1::2]))
-    return SegmentEdges(n_samples=n, switch_off_sample=k_off, ramp_end_sample=k_end, shape=shape, tx_windows=windows)
+    windows: list[tuple[int, int]] = []
+    for a, b in zip(changes[0::2], changes[1::2]):
+        if windows and a - windows[-1][1] <= MAX_GAP_IN_PULSE:  # a sample of a sine that happens to be 0
+            windows[-1] = (windows[-1][0], int(b))
+        else:
+            windows.append((int(a), int(b)))
+    return SegmentEdges(n_samples=n, switch_off_sample=k_off, ramp_end_sample=k_end, shape=shape,
+                        tx_windows=tuple(windows))
 
 
 def samples_to_us(samples: int, sample_rate_hz: float) -> int:

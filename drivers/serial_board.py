@@ -258,18 +258,20 @@ class SerialBoard:
         self._check_tripped()
         edges = segment_edges(gate, tx)
         fs = sample_rate_hz
-        if len(edges.tx_windows) > 1:
-            raise DriverError("serial board: the board runs one transmit window per segment; "
-                              f"this segment has {len(edges.tx_windows)}")
-        tx_start, tx_stop = edges.tx_windows[0] if edges.tx_windows else (edges.switch_off_sample,) * 2
+        if len(edges.tx_windows) > bp.MAX_EXTRA_TX_WINDOWS + 1:
+            raise DriverError(f"serial board: the board runs at most {bp.MAX_EXTRA_TX_WINDOWS + 1} transmit windows "
+                              f"per segment; this segment has {len(edges.tx_windows)}")
+        windows = [(samples_to_us(max(0, a - edges.switch_off_sample), fs), samples_to_us(b - a, fs))
+                   for a, b in edges.tx_windows] or [(0, 0)]
         hold_s = edges.switch_off_sample / fs + (TIMER_HOLD_MARGIN_S if self.cfg.trigger == "marker" else 0.0)
         timing = bp.SegmentTiming(
             trigger=self.cfg.trigger, hold_us=int(round(hold_s * 1e6)),
             ramp_us=samples_to_us(edges.ramp_end_sample - edges.switch_off_sample, fs), shape=edges.shape,
-            tx_start_us=samples_to_us(max(0, tx_start - edges.switch_off_sample), fs),
-            tx_len_us=samples_to_us(tx_stop - tx_start, fs),
+            tx_start_us=windows[0][0], tx_len_us=windows[0][1],
             receive_us=samples_to_us(edges.n_samples - edges.switch_off_sample, fs))
         self._request("SEG", *timing.args())
+        for start_us, length_us in windows[1:]:
+            self._request("SEGTX", start_us, length_us)
         self._segment_armed = True
 
     def finish_segment(self) -> tuple[bool, tuple[str, ...]]:

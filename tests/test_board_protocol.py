@@ -5,7 +5,7 @@ from __future__ import annotations
 import pytest
 
 from controller.config.schema import FidSequence, PolariseSpec, PulseSpec, ReceiveSpec, SwitchOffSpec
-from controller.sequences.fid import compile_fid
+from controller.sequences.compile import compile_sequence
 from controller.sequences.render import render_segment
 from controller.sequences.timeline import Pulse, SwitchOff
 from drivers import board_protocol as bp
@@ -60,7 +60,7 @@ def test_segment_edges_agree_with_the_compiled_timeline(shape):
                        pulse=PulseSpec(duration_s=0.005, amplitude_v=0.3, frequency_hz=2000.0, delay_s=0.01),
                        receive=ReceiveSpec(dead_time_s=0.01, acquire_s=0.2))
     fs = 48000.0
-    shot = compile_fid(spec, fs).shots[0]
+    shot = compile_sequence(spec, fs).shots[0]
     waves = render_segment(shot, fs)
     edges = segment_edges(waves.gate, waves.tx)
     (off,) = shot.of_kind(SwitchOff)

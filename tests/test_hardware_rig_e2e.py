@@ -23,7 +23,7 @@ from controller.config.loader import load_rig
 from controller.engine import Engine
 from controller.records import ShotAcquired
 from controller.rig import build_rig
-from controller.sequences.fid import compile_fid
+from controller.sequences.compile import compile_sequence
 from controller.config.loader import load_sequence
 from transports import (JACK_PERIOD, JACK_RATE_HZ, ROOT, board_emulator, jack_server,  # noqa: F401 - fixtures
                         supply_process)
@@ -141,7 +141,7 @@ def test_a_supply_that_fails_mid_run_stops_the_engine_with_the_rig_safe(tmp_path
     try:
         engine = Engine(rig, clock)
         engine.best_effort_sinks.append(pull_the_plug)
-        timeline = compile_fid(load_sequence(tmp_path / "fid.toml"), JACK_RATE_HZ)
+        timeline = compile_sequence(load_sequence(tmp_path / "fid.toml"), JACK_RATE_HZ)
         started = time.monotonic()
         outcome = engine.run(timeline, {})
         assert time.monotonic() - started < 10
@@ -184,7 +184,7 @@ def test_the_board_lead_pulled_and_replugged_mid_run_does_not_stop_it(tmp_path, 
     try:
         engine = Engine(rig, clock)
         engine.best_effort_sinks.append(pull_and_replug)
-        outcome = engine.run(compile_fid(load_sequence(tmp_path / "fid.toml"), JACK_RATE_HZ), {})
+        outcome = engine.run(compile_sequence(load_sequence(tmp_path / "fid.toml"), JACK_RATE_HZ), {})
         reconnects = rig.board.reconnects
     finally:
         rig.close()

@@ -10,7 +10,7 @@ import pytest
 from controller.config.hardware import ScpiDaqConfig
 from controller.config.schema import FidSequence, PolariseSpec, PulseSpec, ReceiveSpec
 from controller.errors import DriverError
-from controller.sequences.fid import compile_fid
+from controller.sequences.compile import compile_sequence
 from controller.sequences.render import render_segment
 from controller.sequences.timeline import Pulse
 from drivers.emulators.scpi_daq import start_pair
@@ -41,7 +41,7 @@ def shot(pulse_hz=2087.0, phase_deg=30.0):
     spec = FidSequence(name="t", polarise=PolariseSpec(current_a=1.0, duration_s=0.3),
                        pulse=PulseSpec(duration_s=0.01, amplitude_v=0.4, frequency_hz=pulse_hz, phase_deg=phase_deg,
                                        delay_s=0.005), receive=ReceiveSpec(dead_time_s=0.005, acquire_s=0.2))
-    plan = compile_fid(spec, FS).shots[0]
+    plan = compile_sequence(spec, FS).shots[0]
     return plan, render_segment(plan, FS)
 
 

@@ -68,9 +68,9 @@ def test_watchdog_turns_the_coil_off_when_the_host_goes_quiet(board_emulator):
     """A host speaking raw frames, then silent: the board must go idle within the watchdog time."""
     port = serial.Serial(str(board_emulator.link), 115200, timeout=0.5)
     for seq, (word, *args) in enumerate((("HELLO", "1.0"), ("WDOG", 250), ("PATH", "polarise")), start=1):
+        last_frame = time.monotonic()  # the board hears it after this instant
         port.write(bp.encode(">", seq, word, *args))
         assert bp.decode(port.readline()).ok
-    last_frame = time.monotonic()
     assert wait_for(lambda: board_emulator.path == "idle", timeout_s=2.0)
     quiet_s = time.monotonic() - last_frame
     assert 0.25 <= quiet_s < 0.25 + 0.15  # the configured watchdog, plus the emulator tick and scheduling
@@ -196,3 +196,19 @@ def test_timer_trigger_switches_off_after_the_hold_time(board_emulator):
         assert not bad and "not locked to the sample clock" in notes[0]
     finally:
         board.close()
+
+
+def test_every_pulse_of_an_echo_train_gets_a_transmit_window(board, board_emulator):
+    """Two pulses (a 90 and a 180) -> SEG carries the first window, SEGTX the second."""
+    gate, tx, fs = segment(off=480, tail=9600)
+    k = np.arange(tx.size)
+    for start, length in ((1000, 96), (3000, 192)):
+        tx[start:start + length] = 0.3 * np.cos(2 * np.pi * 2000.0 * k[start:start + length] / fs)
+    board.set_path("polarise")
+    board.arm_segment(gate, tx, fs)
+    assert board_emulator.state.extra_tx_us == [(round((3000 - 480) / fs * 1e6), round(192 / fs * 1e6))]
+    board_emulator.marker()
+    assert wait_for(lambda: board_emulator.state.segment_state == "done", timeout_s=1.0)
+    paths = [p for _, p, w in board_emulator.history() if w.startswith("segment")]
+    assert paths == ["receive", "transmit", "receive", "transmit", "receive", "idle"]
+    assert board.finish_segment() == (False, ())

@@ -35,6 +35,7 @@ class BoardState:
     watchdog_ms: int = DEFAULT_WATCHDOG_MS
     last_heard_s: float = 0.0
     segment: bp.SegmentTiming | None = None
+    extra_tx_us: list[tuple[int, int]] = field(default_factory=list)  # (start, length) added by SEGTX
     segment_state: str = "none"
     armed_at_s: float = 0.0
     off_at_s: float | None = None
@@ -69,7 +70,8 @@ class BoardEmulator:
         self.state = BoardState(temperature_c=ambient_c, last_heard_s=self._started_s)
         self._commands = {"HELLO": self._cmd_hello, "WDOG": self._cmd_wdog, "PING": self._cmd_ping,
                           "STAT": self._cmd_stat, "CLEAR": self._cmd_clear, "PATH": self._cmd_path,
-                          "SENS": self._cmd_sens, "SEG": self._cmd_seg, "SEGQ": self._cmd_segq}
+                          "SENS": self._cmd_sens, "SEG": self._cmd_seg, "SEGQ": self._cmd_segq,
+                          "SEGTX": self._cmd_segtx}
 
     # ---- lifecycle ----------------------------------------------------------------------
     def start(self) -> "BoardEmulator":
@@ -214,7 +216,8 @@ class BoardEmulator:
             if since_us >= seg.receive_us:
                 s.segment_state = "done"
                 self._set_path("idle", "segment done")
-            elif seg.tx_len_us and seg.tx_start_us <= since_us < seg.tx_start_us + seg.tx_len_us:
+            elif any(length and start <= since_us < start + length
+                     for start, length in [(seg.tx_start_us, seg.tx_len_us), *s.extra_tx_us]):
                 self._set_path("transmit", "segment transmit window")
             else:
                 self._set_path("receive", "segment receive")
@@ -302,7 +305,20 @@ class BoardEmulator:
             return
         s = self.state
         s.segment, s.segment_state, s.armed_at_s, s.off_at_s = timing, "armed", time.monotonic(), None
+        s.extra_tx_us = []
         self._reply(seq, "OK", "armed")
+
+    def _cmd_segtx(self, seq: int, args: tuple[str, ...]) -> None:
+        s = self.state
+        if len(args) != 2 or not all(a.isdigit() for a in args):
+            self._reply(seq, "ERR", "SYNTAX", "SEGTX <start_us> <len_us>")
+        elif s.segment_state != "armed":
+            self._reply(seq, "ERR", "STATE", "SEGTX needs an armed segment")
+        elif len(s.extra_tx_us) >= bp.MAX_EXTRA_TX_WINDOWS:
+            self._reply(seq, "ERR", "RANGE", f"at most {bp.MAX_EXTRA_TX_WINDOWS + 1} transmit windows")
+        else:
+            s.extra_tx_us.append((int(args[0]), int(args[1])))
+            self._reply(seq, "OK", len(s.extra_tx_us) + 1)
 
     def _cmd_segq(self, seq: int, args: tuple[str, ...]) -> None:
         s = self.state
