@@ -1,0 +1,255 @@
+"""The terminal UI's one door to the analysis: what the live views need from shots.
+
+Everything the TUI shows that is computed from samples comes from here: the acquisition
+window of a shot, its demodulated envelope, the amplitude spectrum around the Larmor line,
+the running stack and the fit of the stack.  The fit is delegated to `controller.analysis`;
+switching to another analysis pipeline means editing this module only.
+
+All functions are pure (arrays in, new arrays out); `LiveStack` is the one piece of state,
+a running sum owned by the analysis thread.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+import numpy as np
+from scipy.signal import butter, sosfiltfilt
+
+from controller.analysis.fit import fit_damped_sine, spectrum_peak_hz
+from controller.analysis.run_analysis import DEFAULT_BAND_HZ
+from controller.physics.constants import gamma_hz_per_nt
+from controller.records import ShotAcquired
+
+ENVELOPE_BANDWIDTH_HZ = 4.0
+SPECTRUM_HALF_SPAN_HZ = 120.0
+DISPLAY_BINS = 1500
+
+
+@dataclass(frozen=True)
+class Trace:
+    """A signal against time from the FID's time zero, reduced for display."""
+
+    time_s: np.ndarray
+    signal_v: np.ndarray
+    envelope_time_s: np.ndarray
+    envelope_v: np.ndarray
+
+
+@dataclass(frozen=True)
+class Spectrum:
+    frequency_hz: np.ndarray
+    amplitude_v: np.ndarray
+    mains_harmonics_hz: tuple[float, ...]
+    larmor_hz: float
+
+
+@dataclass(frozen=True)
+class FitSummary:
+    """The stack's fit: each value with its standard deviation."""
+
+    shots: int
+    frequency_hz: float
+    frequency_sd_hz: float
+    field_nt: float
+    field_sd_nt: float
+    t2star_s: float
+    t2star_sd_s: float
+    snr: float
+    snr_sd: float
+
+
+@dataclass(frozen=True)
+class LiveViews:
+    """Everything the live views show after one shot."""
+
+    run_id: str
+    shot_index: int
+    shot: Trace
+    shot_spectrum: Spectrum
+    stack: Trace | None
+    stack_spectrum: Spectrum | None
+    shots_stacked: int
+    fit: FitSummary | None
+    fit_note: str
+
+
+# ---- pure functions ------------------------------------------------------------------------
+def acquisition_window(record: ShotAcquired, channel: str = "signal") -> tuple[np.ndarray, float]:
+    """(samples of the acquisition window, time of its first sample after time zero in s).
+
+    Time zero is the end of the switch-off ramp or of the last pulse, dead_time_s before the
+    acquisition starts (as recorded by the engine).
+    """
+    index = record.channel_names.index(channel) if channel in record.channel_names else 0
+    start = record.acquire_start_sample
+    window = np.asarray(record.samples[index, start:start + record.acquire_samples], dtype=float)
+    return window, float(record.dead_time_s)
+
+
+def minmax_reduce(time_s: np.ndarray, values: np.ndarray, bins: int = DISPLAY_BINS) -> tuple[np.ndarray, np.ndarray]:
+    """Keep the min and the max of each of `bins` equal runs of samples (so no spike is lost)."""
+    n = values.size
+    if n <= 2 * bins:
+        return time_s.copy(), values.copy()
+    edges = np.linspace(0, n, bins + 1).astype(int)
+    lo = np.minimum.reduceat(values, edges[:-1])
+    hi = np.maximum.reduceat(values, edges[:-1])
+    t = time_s[edges[:-1]]
+    return np.repeat(t, 2), np.column_stack([lo, hi]).ravel()
+
+
+def demodulated_envelope(signal_v: np.ndarray, sample_rate_hz: float, reference_hz: float,
+                         bandwidth_hz: float = ENVELOPE_BANDWIDTH_HZ) -> np.ndarray:
+    """Envelope by quadrature demodulation: 2 |LPF{ y(t) exp(-i 2 pi f_ref t) }|.
+
+    For y = A exp(-t/T) cos(2 pi f t + phi) with f near f_ref, the product is
+    (A/2) exp(-t/T) [exp(i(2 pi (f - f_ref) t + phi)) + (a term at f + f_ref)]; a low-pass
+    (4th-order Butterworth, run forward and backward so it adds no delay) keeps the first
+    term, whose modulus times 2 is A exp(-t/T).  Source: quadrature (I/Q) detection, e.g.
+    Lyons, Understanding Digital Signal Processing, 3rd ed., ch. 8 (from memory).
+    """
+    y = np.asarray(signal_v, dtype=float)
+    t = np.arange(y.size) / sample_rate_hz
+    baseband = y * np.exp(-2j * np.pi * reference_hz * t)
+    sos = butter(4, bandwidth_hz, fs=sample_rate_hz, output="sos")
+    if y.size <= 3 * 2 * sos.shape[0]:
+        return 2.0 * np.abs(baseband)
+    low = sosfiltfilt(sos, baseband.real) + 1j * sosfiltfilt(sos, baseband.imag)
+    return 2.0 * np.abs(low)
+
+
+def amplitude_spectrum(signal_v: np.ndarray, sample_rate_hz: float, pad: int = 4) -> tuple[np.ndarray, np.ndarray]:
+    """(frequency_hz, amplitude_v): Hann-windowed |FFT| scaled by 2 / sum(w).
+
+    A sinusoid of amplitude A centred on a bin reads A (the Hann window's coherent gain
+    sum(w)/N = 0.5).  Source: F. J. Harris, Proc. IEEE 66:51 (1978), table 1.
+    """
+    y = np.asarray(signal_v, dtype=float)
+    w = np.hanning(y.size)
+    spec = np.abs(np.fft.rfft((y - y.mean()) * w, y.size * pad)) * 2.0 / w.sum()
+    return np.fft.rfftfreq(y.size * pad, 1.0 / sample_rate_hz), spec
+
+
+def mains_harmonics_hz(low_hz: float, high_hz: float, mains_hz: float) -> tuple[float, ...]:
+    """Multiples n * mains_hz (n >= 1) inside [low_hz, high_hz]."""
+    first = max(1, math.ceil(low_hz / mains_hz))
+    last = math.floor(high_hz / mains_hz)
+    return tuple(n * mains_hz for n in range(first, last + 1))
+
+
+def spectrum_near(signal_v: np.ndarray, sample_rate_hz: float, centre_hz: float, mains_hz: float,
+                  half_span_hz: float = SPECTRUM_HALF_SPAN_HZ) -> Spectrum:
+    """The amplitude spectrum within centre_hz +/- half_span_hz, with the mains harmonics there."""
+    freqs, amps = amplitude_spectrum(signal_v, sample_rate_hz)
+    lo, hi = centre_hz - half_span_hz, centre_hz + half_span_hz
+    inside = (freqs >= lo) & (freqs <= hi)
+    return Spectrum(frequency_hz=freqs[inside], amplitude_v=amps[inside],
+                    mains_harmonics_hz=mains_harmonics_hz(lo, hi, mains_hz), larmor_hz=centre_hz)
+
+
+def trace_of(window_v: np.ndarray, sample_rate_hz: float, offset_s: float, reference_hz: float) -> Trace:
+    """A display trace of an acquisition window and its envelope, times from time zero."""
+    t = offset_s + np.arange(window_v.size) / sample_rate_hz
+    envelope = demodulated_envelope(window_v, sample_rate_hz, reference_hz)
+    t_sig, sig = minmax_reduce(t, window_v)
+    step = max(1, envelope.size // DISPLAY_BINS)
+    return Trace(time_s=t_sig, signal_v=sig, envelope_time_s=t[::step].copy(), envelope_v=envelope[::step].copy())
+
+
+def fit_window(window_v: np.ndarray, sample_rate_hz: float, offset_s: float, shots: int,
+               band_hz: tuple[float, float], gamma: str | float = "shielded") -> FitSummary:
+    """Fit A exp(-t/T2*) cos(2 pi f t + phi) (controller.analysis.fit) and convert f to field.
+
+    B = f / (gamma'/2pi), sd(B) = sd(f) / (gamma'/2pi).  SNR = A / sigma with
+    (sd SNR / SNR)^2 = (sd A / A)^2 + 1 / (2 (n - 4)), the second term the relative standard
+    error of a standard deviation estimated from n - 4 degrees of freedom (Gaussian noise;
+    J. R. Taylor, An Introduction to Error Analysis, 2nd ed., 1997, from memory).
+    """
+    fit = fit_damped_sine(window_v, sample_rate_hz, offset_s, band_hz)
+    g = gamma_hz_per_nt(gamma)
+    dof = max(1, window_v.size - 4)
+    rel_a = fit.amplitude_sd / fit.amplitude if fit.amplitude > 0 else math.inf
+    snr_sd = fit.snr * math.sqrt(rel_a**2 + 1.0 / (2.0 * dof))
+    return FitSummary(shots=shots, frequency_hz=fit.frequency_hz, frequency_sd_hz=fit.frequency_sd_hz,
+                      field_nt=fit.frequency_hz / g, field_sd_nt=fit.frequency_sd_hz / g,
+                      t2star_s=float(fit.t2star_s), t2star_sd_s=float(fit.t2star_sd_s),
+                      snr=float(fit.snr), snr_sd=float(snr_sd))
+
+
+def fit_from_result(result: dict) -> FitSummary | None:
+    """A FitSummary from an analysis result dict (a ShotAnalysed record); None if keys lack."""
+    try:
+        snr = float(result["snr"])
+        return FitSummary(shots=int(result.get("shots", 0)), frequency_hz=float(result["frequency_hz"]),
+                          frequency_sd_hz=float(result["frequency_sd_hz"]), field_nt=float(result["field_nt"]),
+                          field_sd_nt=float(result["field_sd_nt"]), t2star_s=float(result["t2star_s"]),
+                          t2star_sd_s=float(result["t2star_sd_s"]), snr=snr,
+                          snr_sd=float(result.get("snr_sd", math.nan)))
+    except (KeyError, TypeError, ValueError):
+        return None
+
+
+# ---- the running stack ---------------------------------------------------------------------
+class LiveStack:
+    """Running mean of a run's acquisition windows, and the views after each shot.
+
+    Shots marked bad, or whose window length differs from the first, are left out of the
+    stack (they are still shown as the latest shot).
+    """
+
+    def __init__(self, mains_hz: float = 50.0, larmor_guess_hz: float | None = None,
+                 band_hz: tuple[float, float] = DEFAULT_BAND_HZ) -> None:
+        self.mains_hz = mains_hz
+        self.larmor_guess_hz = larmor_guess_hz
+        self.band_hz = band_hz
+        if larmor_guess_hz is not None:
+            self.band_hz = (max(band_hz[0], larmor_guess_hz - 300.0), min(band_hz[1], larmor_guess_hz + 300.0))
+        self.reset("")
+
+    def reset(self, run_id: str) -> None:
+        self.run_id = run_id
+        self.sum_v: np.ndarray | None = None
+        self.count = 0
+        self.offset_s = 0.0
+        self.sample_rate_hz = 0.0
+        self.fit: FitSummary | None = None
+
+    def _reference_hz(self, window_v: np.ndarray, sample_rate_hz: float) -> float:
+        if self.fit is not None and self.band_hz[0] <= self.fit.frequency_hz <= self.band_hz[1]:
+            return self.fit.frequency_hz
+        try:
+            return spectrum_peak_hz(window_v, sample_rate_hz, self.band_hz)
+        except ValueError:
+            return self.larmor_guess_hz or 0.5 * sum(self.band_hz)
+
+    def add(self, record: ShotAcquired, views: bool = True) -> LiveViews | None:
+        """Take one shot into the stack and (unless views is False) compute every view."""
+        if record.run_id != self.run_id:
+            self.reset(record.run_id)
+        fs = record.sample_rate_hz
+        window, offset_s = acquisition_window(record)
+        if not record.bad and (self.sum_v is None or self.sum_v.size == window.size):
+            self.sum_v = window.copy() if self.sum_v is None else self.sum_v + window
+            self.count += 1
+            self.offset_s, self.sample_rate_hz = offset_s, fs
+        if not views:
+            return None
+        note = ""
+        if self.sum_v is not None:
+            try:
+                self.fit = fit_window(self.sum_v / self.count, fs, self.offset_s, self.count, self.band_hz)
+            except (ValueError, ArithmeticError, np.linalg.LinAlgError) as exc:
+                self.fit, note = None, f"no fit: {exc}"
+        reference = self._reference_hz(window, fs)
+        shot = trace_of(window, fs, offset_s, reference)
+        shot_spectrum = spectrum_near(window, fs, reference, self.mains_hz)
+        stack = stack_spectrum = None
+        if self.sum_v is not None:
+            mean = self.sum_v / self.count
+            stack = trace_of(mean, fs, self.offset_s, reference)
+            stack_spectrum = spectrum_near(mean, fs, reference, self.mains_hz)
+        return LiveViews(run_id=record.run_id, shot_index=record.shot_index, shot=shot,
+                         shot_spectrum=shot_spectrum, stack=stack, stack_spectrum=stack_spectrum,
+                         shots_stacked=self.count, fit=self.fit, fit_note=note)

@@ -1,0 +1,172 @@
+"""The precess terminal UI: a thin view on the engine's record stream.
+
+The engine runs on the session's worker thread; its records (and the live analysis) reach
+the app as `EngineEvent` messages through the thread-safe `post_message`, so a driver that
+blocks never freezes the screen.  The app asks the session to start and stop; it never calls
+a driver.  ctrl+x (emergency stop) is a priority binding: it works on every screen, in every
+dialog and while typing.
+"""
+
+from __future__ import annotations
+
+import time
+from pathlib import Path
+from typing import Any
+
+from textual.app import App
+from textual.binding import Binding
+from textual.message import Message
+
+from controller.cli.common import predicted_larmor_hz
+from controller.clock import Clock
+from controller.config.loader import LoadedRig
+from controller.rig import Rig
+from controller.rigmodel import coil_thermal_model
+from controller.tui.latch import STATE_TRIPPED, TripLatch
+from controller.tui.adapter import LiveStack
+from controller.tui.plan import find_sequences
+from controller.tui.screens import AckScreen, ConfirmQuitScreen, HelpScreen, PlanScreen, WatchScreen
+from controller.tui.session import Session
+from controller.tui.state import LiveState
+from controller.tui.widgets import LiveWidget
+
+TICK_HZ = 10.0
+DEFAULT_MAINS_HZ = 50.0  # without a site file; mark 50 Hz harmonics
+
+
+class EngineEvent(Message):
+    """A record or session event, posted from a worker thread."""
+
+    def __init__(self, payload: Any) -> None:
+        super().__init__()
+        self.payload = payload
+
+
+class PrecessApp(App):
+    CSS_PATH = "app.tcss"
+    TITLE = "precess"
+    ENABLE_COMMAND_PALETTE = False
+    BINDINGS = [
+        Binding("ctrl+x", "emergency_stop", "EMERGENCY STOP", priority=True),
+        Binding("s", "stop", "stop"),
+        Binding("g", "go", "go"),
+        Binding("a", "acknowledge", "acknowledge trip"),
+        Binding("p", "plan", "plan"),
+        Binding("w", "watch", "watch"),
+        Binding("question_mark,f1", "help", "help"),
+        Binding("q,ctrl+q", "quit_safely", "quit"),
+    ]
+
+    def __init__(self, loaded: LoadedRig, rig: Rig, clock: Clock, db_path: str | Path,
+                 sequences_dir: str | Path | None = None, latch: TripLatch | None = None) -> None:
+        super().__init__()
+        self.loaded = loaded
+        self.rig = rig
+        self.clock = clock
+        self.db_path = str(db_path)
+        self.sequences_dir = Path(sequences_dir) if sequences_dir else default_sequences_dir(loaded)
+        thermal = coil_thermal_model(loaded.config.coil)
+        self.state = LiveState(rig_name=loaded.config.name, simulated=rig.simulated, thermal=thermal,
+                               predicted_temperature_c=loaded.config.coil.ambient_c)
+        mains_hz = loaded.site.mains_hz if loaded.site is not None else DEFAULT_MAINS_HZ
+        live_stack = LiveStack(mains_hz=mains_hz, larmor_guess_hz=predicted_larmor_hz(loaded))
+        self.session = Session(loaded, rig, clock, self.db_path, self._post_from_thread, latch=latch,
+                               live_stack=live_stack)
+        self._quitting = False
+
+    # ---- plumbing ------------------------------------------------------------------------
+    def _post_from_thread(self, payload: Any) -> None:
+        self.post_message(EngineEvent(payload))
+
+    def on_mount(self) -> None:
+        self.push_screen(WatchScreen())
+        if self.rig.simulated:
+            self.state.say("simulated rig: nothing is energised")
+        else:
+            self.state.say("REAL RIG: the coil carries amps and stores energy; see safety.md", alarm=True)
+        self.set_interval(1.0 / TICK_HZ, self._tick)
+
+    def on_engine_event(self, message: EngineEvent) -> None:
+        parts = self.state.apply(message.payload, time.monotonic())
+        if parts:
+            self.redraw(parts)
+
+    def redraw(self, parts: set[str]) -> None:
+        for screen in self.screen_stack:
+            for widget in screen.query(LiveWidget):
+                widget.state_changed(parts)
+
+    def _tick(self) -> None:
+        if self.state.active or self.session.running:
+            self.redraw({"tick"})
+        if self._quitting and not self.session.running:
+            self.exit()
+
+    def on_unmount(self) -> None:
+        self.session.close()
+
+    # ---- actions -------------------------------------------------------------------------
+    def action_emergency_stop(self) -> None:
+        self.session.emergency_stop()
+        self.bell()
+
+    def action_stop(self) -> None:
+        if self.session.running:
+            self.session.stop("stopped by the operator")
+        else:
+            self.notify("no run is active")
+
+    def action_go(self) -> None:
+        refusal = self.session.go()
+        if refusal:
+            self.notify(f"not started: {refusal}", severity="error")
+            self.state.say(f"not started: {refusal}", alarm=True)
+            self.redraw({"log"})
+
+    def action_acknowledge(self) -> None:
+        latch = self.session.latch
+        if latch.state != STATE_TRIPPED:
+            self.notify("nothing to acknowledge: the supervisor is clear")
+            return
+
+        def done(confirmed: bool | None) -> None:
+            if confirmed:
+                self.session.acknowledge("acknowledged by the operator in the terminal UI")
+
+        self.push_screen(AckScreen(latch.trip_reason), done)
+
+    def action_plan(self) -> None:
+        if isinstance(self.screen, PlanScreen):
+            return
+        if not self.is_screen_installed("plan"):
+            self.install_screen(PlanScreen(find_sequences(self.sequences_dir)), name="plan")
+        self.push_screen("plan")
+
+    def action_watch(self) -> None:
+        while len(self.screen_stack) > 2 and not isinstance(self.screen, WatchScreen):
+            self.pop_screen()
+        if isinstance(self.screen, PlanScreen):
+            self.pop_screen()
+
+    def action_help(self) -> None:
+        if not isinstance(self.screen, HelpScreen):
+            self.push_screen(HelpScreen())
+
+    def action_quit_safely(self) -> None:
+        if not self.session.running:
+            self.exit()
+            return
+
+        def done(confirmed: bool | None) -> None:
+            if confirmed:
+                self.session.stop("the terminal UI is closing")
+                self._quitting = True
+                self.state.say("stopping the run before quitting…")
+                self.redraw({"log"})
+
+        self.push_screen(ConfirmQuitScreen(), done)
+
+
+def default_sequences_dir(loaded: LoadedRig) -> Path:
+    """configs/sequences beside the rig's configs/rigs directory, if it exists."""
+    return Path(loaded.path).resolve().parent.parent / "sequences"

@@ -1,0 +1,149 @@
+"""Textual widgets of the TUI: each draws a part of the app's LiveState when told it changed.
+
+`LiveWidget.PARTS` names the state parts (see LiveState.apply) that make a widget redraw;
+"tick" is the app's 10 Hz timer for clocks and the heartbeat.
+"""
+
+from __future__ import annotations
+
+import time
+from typing import TYPE_CHECKING
+
+from rich.style import Style
+from rich.text import Text
+from textual.widget import Widget
+
+from controller.tui import panels
+from controller.tui.plot import render_plot
+from controller.tui.views import history_specs, spectrum_spec, trace_spec
+
+if TYPE_CHECKING:
+    from controller.tui.state import LiveState
+
+PANE_TRACE = "trace"
+PANE_SPECTRUM = "spectrum"
+PANE_HISTORY = "history"
+
+
+class LiveWidget(Widget):
+    """A widget drawn from the app's LiveState."""
+
+    PARTS: frozenset[str] = frozenset()
+
+    @property
+    def state(self) -> LiveState:
+        return self.app.state  # type: ignore[attr-defined]
+
+    def state_changed(self, parts: set[str]) -> None:
+        if parts & self.PARTS:
+            self.refresh()
+
+    def fit_lines(self, lines: list[Text]) -> Text:
+        width = max(1, self.content_size.width)
+        for line in lines:
+            line.truncate(width, overflow="ellipsis")
+        return Text("\n").join(lines)
+
+
+class StatusBar(LiveWidget):
+    PARTS = frozenset({"run", "latch", "status", "tick"})
+
+    def render(self) -> Text:
+        return panels.status_line(self.state, self.content_size.width)
+
+
+class KeyBar(Widget):
+    """One line of the keys that matter on this screen."""
+
+    def __init__(self, keys: list[tuple[str, str]], **kwargs) -> None:
+        super().__init__(**kwargs)
+        self.keys = keys
+
+    def render(self) -> Text:
+        line = Text()
+        for key, what in self.keys:
+            line.append(f" {key}", Style(bold=True, reverse=key.startswith("^X")))
+            line.append(f" {what} ")
+        line.truncate(max(1, self.content_size.width), overflow="ellipsis")
+        return line
+
+
+class FitPanel(LiveWidget):
+    PARTS = frozenset({"fit"})
+
+    def render(self) -> Text:
+        return self.fit_lines(panels.fit_lines(self.state.fit, self.state.fit_note))
+
+
+class RigPanel(LiveWidget):
+    PARTS = frozenset({"status", "latch", "run", "tick"})
+
+    def render(self) -> Text:
+        return self.fit_lines(panels.rig_lines(self.state, time.monotonic()))
+
+
+class QueuePanel(LiveWidget):
+    PARTS = frozenset({"run", "queue", "log", "tick"})
+
+    def render(self) -> Text:
+        lines, log = panels.queue_lines(self.state)
+        room = max(0, self.content_size.height - len(lines))
+        return self.fit_lines(lines + (log[-room:] if room else []))
+
+
+class PlotPane(LiveWidget):
+    """A plot of the latest shot or the stack (trace or spectrum), or the run history."""
+
+    PARTS = frozenset({"views", "history"})
+
+    def __init__(self, kind: str, **kwargs) -> None:
+        super().__init__(**kwargs)
+        self.kind = kind
+        self.source = "shot"  # or "stack"
+
+    def set_view(self, kind: str, source: str) -> None:
+        self.kind, self.source = kind, source
+        self.border_title = self.title()
+        self.refresh()
+
+    def on_mount(self) -> None:
+        self.border_title = self.title()
+
+    def state_changed(self, parts: set[str]) -> None:
+        if parts & self.PARTS:
+            self.border_title = self.title()
+            self.refresh()
+
+    def title(self) -> str:
+        views = self.state.views
+        if self.kind == PANE_HISTORY:
+            return f"history · field and T2* per run ({len(self.state.history)})"
+        if views is None:
+            return "last shot" if self.kind == PANE_TRACE else "spectrum"
+        what = (f"shot {views.shot_index + 1}" if self.source == "shot"
+                else f"stack of {views.shots_stacked}")
+        if self.kind == PANE_TRACE:
+            return f"{what} · signal, envelope (bold) vs t from switch-off"
+        return f"{what} · amplitude spectrum · ┊ mains · ▾ line"
+
+    def render(self) -> Text:
+        width, height = self.content_size.width, self.content_size.height
+        state = self.state
+        if self.kind == PANE_HISTORY:
+            if not state.history:
+                return Text("no runs yet: each run adds its field and T2* here", Style(dim=True))
+            top, bottom = history_specs(state.history)
+            upper = height // 2
+            lines = render_plot(top, width, upper) + render_plot(bottom, width, height - upper)
+            return Text("\n").join(lines)
+        views = state.views
+        if views is None:
+            return Text("waiting for the first shot · p: plan a run · g: go", Style(dim=True))
+        if self.kind == PANE_TRACE:
+            trace = views.shot if self.source == "shot" or views.stack is None else views.stack
+            spec = trace_spec(trace)
+        else:
+            spectrum = views.shot_spectrum if self.source == "shot" or views.stack_spectrum is None \
+                else views.stack_spectrum
+            spec = spectrum_spec(spectrum)
+        return Text("\n").join(render_plot(spec, width, height))
