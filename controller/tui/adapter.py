@@ -18,13 +18,14 @@ import numpy as np
 from scipy.signal import butter, sosfiltfilt
 
 from controller.analysis.fit import fit_damped_sine, spectrum_peak_hz
-from controller.analysis.run_analysis import DEFAULT_BAND_HZ
+from controller.analysis.run_analysis import DEFAULT_BAND_HZ, analyse_shots, window_of
 from controller.physics.constants import gamma_hz_per_nt
 from controller.records import ShotAcquired
 
 ENVELOPE_BANDWIDTH_HZ = 4.0
 SPECTRUM_HALF_SPAN_HZ = 120.0
 DISPLAY_BINS = 1500
+RESULT_KIND = "fid"  # the kind `precess run` stores its result under
 
 
 @dataclass(frozen=True)
@@ -66,6 +67,7 @@ class LiveViews:
 
     run_id: str
     shot_index: int
+    at_s: float  # when the shot began, on the rig's clock
     shot: Trace
     shot_spectrum: Spectrum
     stack: Trace | None
@@ -178,6 +180,13 @@ def fit_window(window_v: np.ndarray, sample_rate_hz: float, offset_s: float, sho
                       snr=float(fit.snr), snr_sd=float(snr_sd))
 
 
+def stored_run_result(shots: list) -> dict:
+    """The result of a whole run from its stored shots, exactly as `precess run` computes it."""
+    windows = [window_of(s.samples, s.channel_names, s.sample_rate_hz, s.acquire_start_sample, s.acquire_samples,
+                         s.dead_time_s) for s in shots]
+    return analyse_shots(windows)
+
+
 def fit_from_result(result: dict) -> FitSummary | None:
     """A FitSummary from an analysis result dict (a ShotAnalysed record); None if keys lack."""
     try:
@@ -250,6 +259,6 @@ class LiveStack:
             mean = self.sum_v / self.count
             stack = trace_of(mean, fs, self.offset_s, reference)
             stack_spectrum = spectrum_near(mean, fs, reference, self.mains_hz)
-        return LiveViews(run_id=record.run_id, shot_index=record.shot_index, shot=shot,
+        return LiveViews(run_id=record.run_id, shot_index=record.shot_index, at_s=record.started_at_s, shot=shot,
                          shot_spectrum=shot_spectrum, stack=stack, stack_spectrum=stack_spectrum,
                          shots_stacked=self.count, fit=self.fit, fit_note=note)

@@ -9,6 +9,8 @@ dialog and while typing.
 
 from __future__ import annotations
 
+import collections
+import threading
 import time
 from pathlib import Path
 from typing import Any
@@ -20,6 +22,7 @@ from textual.message import Message
 from controller.cli.common import predicted_larmor_hz
 from controller.clock import Clock
 from controller.config.loader import LoadedRig
+from controller.errors import PrecessError
 from controller.rig import Rig
 from controller.rigmodel import coil_thermal_model
 from controller.tui.latch import STATE_TRIPPED, TripLatch
@@ -34,12 +37,8 @@ TICK_HZ = 10.0
 DEFAULT_MAINS_HZ = 50.0  # without a site file; mark 50 Hz harmonics
 
 
-class EngineEvent(Message):
-    """A record or session event, posted from a worker thread."""
-
-    def __init__(self, payload: Any) -> None:
-        super().__init__()
-        self.payload = payload
+class EventsWaiting(Message):
+    """Records or session events wait in the app's inbox (posted from a worker thread)."""
 
 
 class PrecessApp(App):
@@ -58,7 +57,8 @@ class PrecessApp(App):
     ]
 
     def __init__(self, loaded: LoadedRig, rig: Rig, clock: Clock, db_path: str | Path,
-                 sequences_dir: str | Path | None = None, latch: TripLatch | None = None) -> None:
+                 sequences_dir: str | Path | None = None, latch: TripLatch | None = None,
+                 session_options: dict[str, Any] | None = None) -> None:
         super().__init__()
         self.loaded = loaded
         self.rig = rig
@@ -68,15 +68,24 @@ class PrecessApp(App):
         thermal = coil_thermal_model(loaded.config.coil)
         self.state = LiveState(rig_name=loaded.config.name, simulated=rig.simulated, thermal=thermal,
                                predicted_temperature_c=loaded.config.coil.ambient_c)
+        self._inbox: collections.deque = collections.deque()
+        self._inbox_lock = threading.Lock()
+        self._wake_pending = False
         mains_hz = loaded.site.mains_hz if loaded.site is not None else DEFAULT_MAINS_HZ
         live_stack = LiveStack(mains_hz=mains_hz, larmor_guess_hz=predicted_larmor_hz(loaded))
         self.session = Session(loaded, rig, clock, self.db_path, self._post_from_thread, latch=latch,
-                               live_stack=live_stack)
+                               live_stack=live_stack, **(session_options or {}))
         self._quitting = False
 
     # ---- plumbing ------------------------------------------------------------------------
     def _post_from_thread(self, payload: Any) -> None:
-        self.post_message(EngineEvent(payload))
+        """Called on worker threads: queue the event; wake the app once per batch (never blocks)."""
+        with self._inbox_lock:
+            self._inbox.append(payload)
+            if self._wake_pending:
+                return
+            self._wake_pending = True
+        self.post_message(EventsWaiting())
 
     def on_mount(self) -> None:
         self.push_screen(WatchScreen())
@@ -86,8 +95,15 @@ class PrecessApp(App):
             self.state.say("REAL RIG: the coil carries amps and stores energy; see safety.md", alarm=True)
         self.set_interval(1.0 / TICK_HZ, self._tick)
 
-    def on_engine_event(self, message: EngineEvent) -> None:
-        parts = self.state.apply(message.payload, time.monotonic())
+    def on_events_waiting(self, message: EventsWaiting) -> None:
+        with self._inbox_lock:
+            batch = list(self._inbox)
+            self._inbox.clear()
+            self._wake_pending = False
+        now = time.monotonic()
+        parts: set[str] = set()
+        for payload in batch:
+            parts |= self.state.apply(payload, now)
         if parts:
             self.redraw(parts)
 
@@ -129,11 +145,15 @@ class PrecessApp(App):
             self.notify("nothing to acknowledge: the supervisor is clear")
             return
 
-        def done(confirmed: bool | None) -> None:
-            if confirmed:
-                self.session.acknowledge("acknowledged by the operator in the terminal UI")
+        def done(typed: str | None) -> None:
+            if typed is None:
+                return
+            try:
+                self.session.acknowledge(typed, "acknowledged by the operator in the terminal UI")
+            except PrecessError as exc:
+                self.notify(str(exc), severity="error")
 
-        self.push_screen(AckScreen(latch.trip_reason), done)
+        self.push_screen(AckScreen(latch.trip_reason, latch.confirmation), done)
 
     def action_plan(self) -> None:
         if isinstance(self.screen, PlanScreen):

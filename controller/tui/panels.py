@@ -137,6 +137,6 @@ def queue_lines(state: LiveState) -> tuple[list[Text], list[Text]]:
     for i, label in enumerate(state.queue):
         lines.append(Text(("next " if i == 0 else "     ") + label))
     if not state.queue:
-        lines.append(Text("queue empty" + ("" if state.active else " · p: plan"), QUIET))
+        lines.append(Text("queue empty", QUIET))
     log = [Text(text, ALARM if alarm else QUIET) for text, alarm in state.log]
     return lines, log

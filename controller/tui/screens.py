@@ -23,6 +23,9 @@ from controller.tui.widgets import (
 )
 
 
+PARAMETER_COLUMNS = (("parameter", 19), ("value", 12), ("allowed", 17))
+
+
 class LiveScreen(Screen):
     """A screen whose live widgets redraw when it comes back to the top."""
 
@@ -98,7 +101,8 @@ class PlanScreen(LiveScreen):
         self.query_one("#queue").border_title = "queue"
         table = self.query_one("#params", DataTable)
         table.border_title = "parameters · enter: edit"
-        table.add_columns("parameter", "value", "allowed")
+        for label, width in PARAMETER_COLUMNS:
+            table.add_column(label, width=width)
         self.query_one("#verdict").border_title = "checks"
         if self.sequences:
             self.load(0)
@@ -221,34 +225,36 @@ class EditValueScreen(ModalScreen[str | None]):
         self.dismiss(None)
 
 
-class AckScreen(ModalScreen[bool]):
-    """Acknowledge a trip: the operator must type ACK and press Enter."""
+class AckScreen(ModalScreen[str | None]):
+    """Acknowledge a trip: the operator types the rig's name and presses enter."""
 
     BINDINGS = [Binding("escape", "cancel", "cancel")]
-    WORD = "ACK"
 
-    def __init__(self, reason: str) -> None:
+    def __init__(self, reason: str, confirmation: str) -> None:
         super().__init__()
         self.reason = reason
+        self.confirmation = confirmation
 
     def compose(self) -> ComposeResult:
         with Vertical(id="dialog"):
             yield Static(Text(" SUPERVISOR TRIPPED ", ALARM))
             yield Static(self.reason)
-            yield Static("Find and fix the cause first. The rig stays off until you acknowledge.")
-            yield Static(f"Type {self.WORD} and press enter to acknowledge · esc: cancel")
-            yield Input(placeholder=self.WORD, id="word")
+            yield Static("Find and fix the cause first. Nothing is energised until you acknowledge.")
+            yield Static(Text.assemble("Type the rig's name ", (self.confirmation, Style(bold=True)),
+                                       " and press enter · esc: cancel"))
+            yield Input(placeholder="rig name", id="word")
             yield Static("", id="ack-error")
 
     def on_input_submitted(self, event: Input.Submitted) -> None:
-        if event.value.strip() == self.WORD:
-            self.dismiss(True)
+        if event.value.strip() == self.confirmation:
+            self.dismiss(event.value.strip())
         else:
-            self.query_one("#ack-error", Static).update(Text(f"type {self.WORD} exactly (capitals)", ALARM))
+            self.query_one("#ack-error", Static).update(
+                Text("does not match the rig's name; the trip stays latched", ALARM))
             event.input.value = ""
 
     def action_cancel(self) -> None:
-        self.dismiss(False)
+        self.dismiss(None)
 
 
 class ConfirmQuitScreen(ModalScreen[bool]):

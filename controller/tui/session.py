@@ -16,6 +16,7 @@ from __future__ import annotations
 import logging
 import queue
 import threading
+import uuid
 from dataclasses import dataclass
 from typing import Any, Callable
 
@@ -27,11 +28,12 @@ from controller.records import EXIT_COMPLETED, InterlockTripped, Record, RunFini
 from controller.rig import Rig
 from controller.sequences.timeline import Timeline
 from controller.store import Store
-from controller.tui.adapter import LiveStack
+from controller.tui.adapter import RESULT_KIND, LiveStack, stored_run_result
 from controller.tui.latch import STATE_TRIPPED, RecordLatch, TripLatch
 
 log = logging.getLogger(__name__)
 Notify = Callable[[Any], None]
+EMERGENCY_REASON = "EMERGENCY STOP by the operator"
 
 
 @dataclass(frozen=True)
@@ -72,19 +74,28 @@ class LatchChanged:
     reason: str
 
 
+EngineFactory = Callable[[Store], Engine]
+
+
 class Session:
-    """Owns the engine, its worker threads and the run queue for one rig."""
+    """Owns the engine, its worker threads and the run queue for one rig.
+
+    engine_factory(store) builds the Engine of one run with the store as its critical sink
+    (the default: a plain Engine; a supervised one plugs in here).
+    """
 
     def __init__(self, loaded: LoadedRig, rig: Rig, clock: Clock, db_path: str, notify: Notify,
-                 latch: TripLatch | None = None, live_stack: LiveStack | None = None) -> None:
+                 latch: TripLatch | None = None, live_stack: LiveStack | None = None,
+                 engine_factory: EngineFactory | None = None, new_run_id: Callable[[], str] | None = None) -> None:
         self.loaded = loaded
         self.rig = rig
         self.clock = clock
         self.db_path = db_path
         self.notify = notify
-        self.latch: TripLatch = latch or RecordLatch()
-        self.engine = Engine(rig, clock)
-        self.engine.best_effort_sinks.append(self._on_record)
+        self.latch: TripLatch = latch or RecordLatch(loaded.config.name)
+        self.engine_factory = engine_factory or self._plain_engine
+        self.engine: Engine | None = None  # the engine of the active run
+        self.new_run_id = new_run_id or (lambda: uuid.uuid4().hex[:12])
         self.live_stack = live_stack or LiveStack()
         self._lock = threading.Lock()
         self._queue: list[QueuedRun] = []
@@ -94,6 +105,12 @@ class Session:
         self._analysis = threading.Thread(target=self._analyse_loop, name="precess-analysis", daemon=True)
         self._analysis.start()
         self._closed = False
+        self._started_run_id = ""
+
+    def _plain_engine(self, store: Store) -> Engine:
+        engine = Engine(self.rig, self.clock)
+        engine.critical_sinks.append(store.write)
+        return engine
 
     # ---- queries (any thread) ----------------------------------------------------------
     @property
@@ -137,24 +154,32 @@ class Session:
     def stop(self, reason: str = "stopped by the operator") -> None:
         """Stop the active run (rig made safe by the engine) and pause the queue."""
         self._halt.set()
-        if self.running:
-            self.engine.stop(reason)
+        engine = self.engine
+        if engine is not None:
+            engine.stop(reason)
             self.notify(Notice(f"stop requested: {reason}"))
 
     def emergency_stop(self) -> None:
-        """Stop at once, empty the queue; with no active run, make the rig safe on a helper thread."""
+        """Stop at once and empty the queue; the rig is made safe on a helper thread.
+
+        With an active run the engine is told to stop (its `finally` makes the rig safe);
+        an engine that offers `emergency_stop` also makes the rig safe at once from the helper
+        thread, even while its own thread waits on a driver.  With no run, the helper calls
+        `Rig.make_safe()` (idempotent).
+        """
         self._halt.set()
         with self._lock:
             self._queue.clear()
-        if self.running:
-            self.engine.stop("EMERGENCY STOP by the operator")
-        else:
-            threading.Thread(target=self._make_safe_idle, name="precess-make-safe", daemon=True).start()
+        engine = self.engine
+        if engine is not None:
+            engine.stop(EMERGENCY_REASON)
+        threading.Thread(target=self._make_safe_now, args=(engine,), name="precess-make-safe", daemon=True).start()
         self.notify(Notice("EMERGENCY STOP: run stopped, queue emptied, rig being made safe", alarm=True))
         self._queue_changed()
 
-    def acknowledge(self, note: str) -> None:
-        self.latch.acknowledge(note)
+    def acknowledge(self, confirmation: str, note: str) -> None:
+        """Clear a trip (raises PrecessError when the confirmation does not match)."""
+        self.latch.acknowledge(confirmation, note)
         self.notify(LatchChanged(self.latch.state, self.latch.trip_reason))
         self.notify(Notice(f"trip acknowledged: {note}"))
 
@@ -164,15 +189,21 @@ class Session:
         self._halt.set()
         runner = self._runner
         if runner is not None and runner.is_alive():
-            self.engine.stop("the terminal UI was closed")
+            if self.engine is not None:
+                self.engine.stop("the terminal UI was closed")
             runner.join(timeout_s)
         self._shots.put(None)
         self._analysis.join(5.0)
         return runner is None or not runner.is_alive()
 
     # ---- worker threads -----------------------------------------------------------------
-    def _make_safe_idle(self) -> None:
-        failures = self.rig.make_safe()
+    def _make_safe_now(self, engine: Engine | None) -> None:
+        if engine is not None and hasattr(engine, "emergency_stop"):
+            failures = engine.emergency_stop(EMERGENCY_REASON)
+        elif engine is not None:
+            return  # the engine's finally makes the rig safe and reports it in RunFinished
+        else:
+            failures = self.rig.make_safe()
         text = "rig made safe" if not failures else "could not make safe: " + "; ".join(failures)
         self.notify(Notice(text, alarm=bool(failures)))
 
@@ -204,19 +235,38 @@ class Session:
         self.notify(RunBegins(item.label, item.timeline.duration_s))
         try:
             with Store(self.db_path) as store:
-                self.engine.critical_sinks[:] = [store.write]
-                outcome = self.engine.run(item.timeline, item.config_snapshot)
-        except Exception as exc:  # noqa: BLE001 - the store could not open; nothing was energised
-            self.notify(Notice(f"could not start {item.label}: {exc}", alarm=True))
+                engine = self.engine_factory(store)
+                engine.best_effort_sinks.append(self._on_record)
+                self.engine = engine
+                run_id = self.new_run_id()
+                try:
+                    outcome = engine.run(item.timeline, item.config_snapshot, run_id=run_id)
+                finally:
+                    self.engine = None
+                if self._started_run_id != run_id:  # no RunStarted reached us: say why
+                    self.notify(Notice(f"{item.label} did not start: {outcome.reason}", alarm=True))
+                self._store_result(store, outcome.run_id)
+        except Exception as exc:  # noqa: BLE001 - the store could not open or close; reported
+            self.notify(Notice(f"run of {item.label} ended in error: {exc}", alarm=True))
             return False
-        finally:
-            self.engine.critical_sinks[:] = []
         return outcome.exit_status == EXIT_COMPLETED
+
+    def _store_result(self, store: Store, run_id: str) -> None:
+        """Analyse the stored shots as `precess run` does and keep the result with the run."""
+        shots = [s for s in store.shots(run_id) if not s.bad]
+        if not shots:
+            return
+        try:
+            store.add_result(run_id, RESULT_KIND, stored_run_result(shots), self.clock.now())
+        except (ValueError, ArithmeticError) as exc:
+            self.notify(Notice(f"run {run_id} stored; its analysis failed: {exc}", alarm=True))
 
     def _on_record(self, record: Record) -> None:
         """Best-effort sink on the engine's thread: latch, analysis hand-off, UI notification."""
         self.latch.observe(record)
-        if isinstance(record, RunStarted) and self._halt.is_set():
+        if isinstance(record, RunStarted):
+            self._started_run_id = record.run_id
+        if isinstance(record, RunStarted) and self._halt.is_set() and self.engine is not None:
             self.engine.stop("stop requested before the run began")
         if isinstance(record, (RunStarted, ShotAcquired)):
             self._shots.put(record)

@@ -36,7 +36,7 @@ class RunProgress:
 
 @dataclass(frozen=True)
 class HistoryPoint:
-    """One run's latest stacked fit, at the time of its latest shot."""
+    """One run's latest stacked fit, at the start of its latest shot (rig clock)."""
 
     run_id: str
     at_s: float
@@ -115,9 +115,10 @@ class LiveState:
         return {"run"}
 
     def _on_InterlockTripped(self, e: InterlockTripped) -> set[str]:
+        self._advance_model(e.at_s, self.readings.get("current_a", 0.0))
         self.latch_state, self.trip_reason = STATE_TRIPPED, f"{e.check}: {e.reason}"
         self.say(f"TRIP {self.trip_reason}", alarm=True)
-        return {"latch", "log"}
+        return {"latch", "log", "status"}
 
     def _on_RunFinished(self, e: RunFinished) -> set[str]:
         if self.run is not None and e.run_id == self.run.run_id:
@@ -141,8 +142,7 @@ class LiveState:
         self.views, self.fit, self.fit_note = v, v.fit, v.fit_note
         changed = {"views", "fit"}
         if v.fit is not None:
-            at_s = self.run.latest_at_s if self.run is not None and self.run.run_id == v.run_id else 0.0
-            point = HistoryPoint(v.run_id, at_s, v.fit.field_nt, v.fit.field_sd_nt, v.fit.t2star_s, v.fit.t2star_sd_s)
+            point = HistoryPoint(v.run_id, v.at_s, v.fit.field_nt, v.fit.field_sd_nt, v.fit.t2star_s, v.fit.t2star_sd_s)
             if self.history and self.history[-1].run_id == v.run_id:
                 self.history[-1] = point
             else:

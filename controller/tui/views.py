@@ -49,7 +49,7 @@ def history_specs(points: list[HistoryPoint]) -> tuple[PlotSpec, PlotSpec]:
     """Field (nT) and T2* (s) of each run against minutes since the first, with ±1 sd bars."""
     t0 = points[0].at_s
     minutes = np.array([(p.at_s - t0) / 60.0 for p in points])
-    x_range = (0.0, max(1.0, float(minutes.max()) * 1.05))
+    x_range = (0.0, max(0.1, float(minutes.max()) * 1.1))
 
     def spec(values: list[float], sds: list[float], unit: str) -> PlotSpec:
         v, sd = np.array(values), np.array(sds)
@@ -57,7 +57,7 @@ def history_specs(points: list[HistoryPoint]) -> tuple[PlotSpec, PlotSpec]:
         bars = Series(np.repeat(minutes, 2), np.column_stack([v - sd, v + sd]).ravel(), ERROR_BAR_STYLE, connect=False)
         lo, hi = float((v - sd).min()), float((v + sd).max())
         pad = max(hi - lo, abs(hi) * 1e-6, 1e-9) * 0.1
-        return PlotSpec(series=(Series(minutes, v, ENVELOPE_STYLE), bars), x_unit="min", y_unit=unit,
+        return PlotSpec(series=(bars, Series(minutes, v, ENVELOPE_STYLE)), x_unit="min", y_unit=unit,
                         x_range=x_range, y_range=(lo - pad, hi + pad), y_scale_unit=False)
 
     return (spec([p.field_nt for p in points], [p.field_sd_nt for p in points], "nT"),

@@ -123,8 +123,8 @@ class PlotPane(LiveWidget):
         what = (f"shot {views.shot_index + 1}" if self.source == "shot"
                 else f"stack of {views.shots_stacked}")
         if self.kind == PANE_TRACE:
-            return f"{what} · signal, envelope (bold) vs t from switch-off"
-        return f"{what} · amplitude spectrum · ┊ mains · ▾ line"
+            return f"{what} · signal & envelope (bold)"
+        return f"{what} · spectrum · ┊ mains ▾ line"
 
     def render(self) -> Text:
         width, height = self.content_size.width, self.content_size.height
