@@ -15,14 +15,14 @@ import math
 from dataclasses import dataclass
 
 import numpy as np
-from scipy.signal import butter, sosfiltfilt
+from scipy.signal import fftconvolve
 
 from controller.analysis.fit import fit_damped_sine, spectrum_peak_hz
 from controller.analysis.run_analysis import DEFAULT_BAND_HZ, analyse_shots, window_of
 from controller.physics.constants import gamma_hz_per_nt
 from controller.records import ShotAcquired
 
-ENVELOPE_BANDWIDTH_HZ = 4.0
+ENVELOPE_SMOOTHING_S = 0.05  # Gaussian sigma: -3 dB near 2.7 Hz off the reference
 SPECTRUM_HALF_SPAN_HZ = 120.0
 DISPLAY_BINS = 1500
 RESULT_KIND = "fid"  # the kind `precess run` stores its result under
@@ -103,23 +103,28 @@ def minmax_reduce(time_s: np.ndarray, values: np.ndarray, bins: int = DISPLAY_BI
 
 
 def demodulated_envelope(signal_v: np.ndarray, sample_rate_hz: float, reference_hz: float,
-                         bandwidth_hz: float = ENVELOPE_BANDWIDTH_HZ) -> np.ndarray:
+                         smoothing_s: float = ENVELOPE_SMOOTHING_S) -> np.ndarray:
     """Envelope by quadrature demodulation: 2 |LPF{ y(t) exp(-i 2 pi f_ref t) }|.
 
     For y = A exp(-t/T) cos(2 pi f t + phi) with f near f_ref, the product is
-    (A/2) exp(-t/T) [exp(i(2 pi (f - f_ref) t + phi)) + (a term at f + f_ref)]; a low-pass
-    (4th-order Butterworth, run forward and backward so it adds no delay) keeps the first
-    term, whose modulus times 2 is A exp(-t/T).  Source: quadrature (I/Q) detection, e.g.
-    Lyons, Understanding Digital Signal Processing, 3rd ed., ch. 8 (from memory).
+    (A/2) exp(-t/T) [exp(i(2 pi (f - f_ref) t + phi)) + (a term at f + f_ref)]; the low-pass
+    keeps the first term, whose modulus times 2 is A exp(-t/T) (quadrature detection, e.g.
+    Lyons, Understanding Digital Signal Processing, 3rd ed., ch. 8, from memory).
+
+    The low-pass is a Gaussian-weighted local mean (sigma = smoothing_s, normalised by the
+    weights inside the record, so the ends neither ring nor sag to zero); its response is
+    |H(f)| = exp(-(2 pi f sigma)^2 / 2) (the Fourier transform of a Gaussian).
     """
     y = np.asarray(signal_v, dtype=float)
     t = np.arange(y.size) / sample_rate_hz
     baseband = y * np.exp(-2j * np.pi * reference_hz * t)
-    sos = butter(4, bandwidth_hz, fs=sample_rate_hz, output="sos")
-    if y.size <= 3 * 2 * sos.shape[0]:
+    sigma_n = max(1.0, smoothing_s * sample_rate_hz)
+    half = min(y.size - 1, int(4 * sigma_n))
+    if half < 1:
         return 2.0 * np.abs(baseband)
-    low = sosfiltfilt(sos, baseband.real) + 1j * sosfiltfilt(sos, baseband.imag)
-    return 2.0 * np.abs(low)
+    kernel = np.exp(-0.5 * (np.arange(-half, half + 1) / sigma_n) ** 2)
+    weights = fftconvolve(np.ones(y.size), kernel, mode="same")
+    return 2.0 * np.abs(fftconvolve(baseband, kernel, mode="same") / weights)
 
 
 def amplitude_spectrum(signal_v: np.ndarray, sample_rate_hz: float, pad: int = 4) -> tuple[np.ndarray, np.ndarray]:
