@@ -12,14 +12,14 @@ import threading
 import pytest
 from scipy import constants
 
-from controller.records import InterlockTripped, StatusSample
 from controller.tui.keys import KEYS
 from controller.tui.panels import format_pm
 from controller.tui.latch import STATE_CLEAR, STATE_TRIPPED
 from controller.tui.screens import AckScreen, HelpScreen, PlanScreen, WatchScreen
 from controller.tui.widgets import PlotPane
 
-from tests.tui_support import coil_is_off, make_app, plan_sequence, quick_idle, start_run, wait_for
+from tests.conftest import EPOCH_NOON_UTC
+from tests.tui_support import coil_is_off, edit_parameter, make_app, plan_sequence, quick_idle, start_run, wait_for
 
 pytestmark = pytest.mark.timeout(120)
 
@@ -104,7 +104,6 @@ async def test_plan_screen_refuses_what_precess_check_refuses(tmp_path):
         await pilot.press("plus")
         await pilot.pause(0.05)
         assert app.session.queued() == ()
-        from tests.tui_support import edit_parameter
         await edit_parameter(pilot, "polarise.current_a", "two")
         assert "INVALID sequence editor: polarise.current_a: 'two' is not a number" in \
             screen.query_one("#verdict").render().plain
@@ -112,44 +111,34 @@ async def test_plan_screen_refuses_what_precess_check_refuses(tmp_path):
         assert screen.query_one("#verdict").render().plain.startswith("READY")
 
 
-async def test_trip_latches_blocks_go_and_needs_the_rig_name_to_clear(tmp_path):
+async def test_supervisor_trip_latches_blocks_go_and_needs_the_rig_name_to_clear(tmp_path):
     app = make_app(tmp_path / "tui.sqlite", pace=0.05)
+    # fault injection: from 1 s into the run the supply delivers 60 % more than its setpoint
+    app.rig.instrument.faults.overshoot_at_s = EPOCH_NOON_UTC + 1.0
     async with app.run_test(size=(80, 24)) as pilot:
         session = app.session
-
-        def trip_when_energised(record):
-            # stands in for the rig supervisor: an over-current trip, the engine stopped at once
-            if isinstance(record, StatusSample) and record.readings["current_a"] > 1.0 and session.engine:
-                engine = session.engine
-                session.engine = None
-                session._on_record(InterlockTripped(record.run_id, record.at_s, "over-current",
-                                                    "2.0 A above the 1.0 A test limit", {"current_a": 2.0}))
-                engine.stop("interlock: over-current")
-
-        original = session.engine_factory
-        session.engine_factory = lambda store: _with_sink(original(store), trip_when_energised)
         await start_run(pilot, "fid-sudden", {"shots": "4"})
         await wait_for(pilot, lambda: app.state.run is not None and app.state.run.exit_status != "", what="trip")
-        assert app.state.latch_state == STATE_TRIPPED
+        assert app.state.run.exit_status == "interlock"
+        assert app.state.latch_state == STATE_TRIPPED and session.latch.file.latched  # in the rig's latch file
         assert coil_is_off(app.rig)
         assert "TRIPPED" in app.screen.query_one("#status").render().plain
-        assert "over-current" in app.screen.query_one("#rig").render().plain
-        await pilot.press("g")  # the queue cannot start while tripped (queue something first)
-        assert not session.running
-        await pilot.press("a")
+        assert "TRIPPED" in app.screen.query_one("#rig").render().plain
+        app.rig.instrument.faults.overshoot_at_s = None  # the cause is fixed
+        await plan_sequence(pilot, "fid-sudden", {"shots": "1"})
+        await pilot.press("plus", "g")  # a latched trip keeps the queue from starting
+        await pilot.pause(0.1)
+        assert not session.running and session.queued()
+        await pilot.press("w", "a")
         await wait_for(pilot, lambda: isinstance(app.screen, AckScreen), 5)
         await pilot.press(*"ACK", "enter")  # not the rig's name: stays latched
         await pilot.pause(0.05)
         assert isinstance(app.screen, AckScreen) and session.latch.state == STATE_TRIPPED
         await pilot.press(*app.loaded.config.name, "enter")
         await wait_for(pilot, lambda: app.state.latch_state == STATE_CLEAR, 5, "the latch to clear")
-        assert isinstance(app.screen, WatchScreen)
-        assert session.latch.acknowledged and "over-current" in session.latch.acknowledged[0][0]
-
-
-def _with_sink(engine, sink):
-    engine.best_effort_sinks.append(sink)
-    return engine
+        assert isinstance(app.screen, WatchScreen) and not session.latch.file.latched
+        await pilot.press("g")  # and now the queued run may start
+        await wait_for(pilot, lambda: app.state.run.exit_status == "completed", what="the next run")
 
 
 class BlockingTransceiver:

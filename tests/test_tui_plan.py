@@ -86,7 +86,7 @@ def test_checks_are_precess_checks_and_only_a_ready_plan_can_be_queued():
     assert ready.ready and ready.peak_temperature_c > loaded.config.coil.ambient_c
     item = queued_run(ready, loaded, entry.path)
     assert len(item.timeline.shots) == entry.spec.shots and item.config_snapshot["edited_in"] == "precess tui"
-    hot = check_rows(type(entry.spec), with_text(form_of(entry), "polarise.duration_s", "7.9"), loaded)
+    hot = check_rows(type(entry.spec), with_text(form_of(entry), "polarise.current_a", "3.2"), loaded)
     assert [str(v) for v in hot.violations] == [str(v) for v in check_all(hot.timeline, loaded.config)]
     assert hot.violations and not hot.ready
     with pytest.raises(ValueError):

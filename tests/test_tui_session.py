@@ -13,11 +13,9 @@ from controller.config.loader import load_rig, load_sequence
 from controller.errors import PrecessError
 from controller.records import InterlockTripped, RunFinished, RunStarted, StatusSample
 from controller.rig import build_rig
-from controller.rigmodel import coil_thermal_model
 from controller.sequences.compile import compile_sequence
 from controller.tui.latch import STATE_CLEAR, STATE_TRIPPED, RecordLatch
 from controller.tui.session import Notice, QueuedRun, Session
-from controller.tui.state import LiveState
 
 from tests.conftest import DEMO_RIG, EPOCH_NOON_UTC, FID_SUDDEN
 from tests.tui_support import coil_is_off
@@ -117,19 +115,3 @@ def test_close_stops_an_active_run_and_leaves_the_coil_off(tmp_path):
     finished = [e for e in events if isinstance(e, RunFinished)]
     assert finished and finished[-1].exit_status == "stopped"
     assert coil_is_off(rig)
-
-
-def test_predicted_temperature_follows_the_thermal_model_between_samples():
-    # source: the exact solution of dT/dt = a - b T composes over steps (controller.physics.thermal),
-    # so 20 samples 0.1 s apart at 2 A equal one 2 s step
-    loaded = load_rig(DEMO_RIG)
-    model = coil_thermal_model(loaded.config.coil)
-    ambient = loaded.config.coil.ambient_c
-    state = LiveState("rig", True, model, ambient)
-    t0 = EPOCH_NOON_UTC
-    state.apply(RunStarted("r", t0, "s", "fid", 1, 48000.0, {}, "0", True), 0.0)
-    state.apply(StatusSample("r", t0, {"current_a": 2.0}), 0.0)
-    for k in range(1, 21):
-        state.apply(StatusSample("r", t0 + 0.1 * k, {"current_a": 2.0 if k < 20 else 0.0}), 0.0)
-    assert state.predicted_temperature_c == pytest.approx(model.step(ambient, 2.0, 2.0), rel=1e-12)
-    assert state.predicted_temperature_c > ambient

@@ -9,7 +9,6 @@ from __future__ import annotations
 
 import pytest
 
-from controller.records import InterlockTripped
 from controller.tui.screens import AckScreen, HelpScreen
 
 from tests.conftest import EPOCH_NOON_UTC
@@ -73,13 +72,12 @@ def test_plan_screen_80x24(snap_compare, tmp_path):
 
 def test_trip_acknowledgement_dialog_80x24(snap_compare, tmp_path):
     app = make_app(tmp_path / "s.sqlite")
+    app.rig.instrument.faults.open_coil_at_s = EPOCH_NOON_UTC + 1.0  # the coil circuit breaks mid-pulse
 
     async def run_before(pilot) -> None:
-        # the record a supervisor emits on a trip, through the session's record path
-        app.session._on_record(InterlockTripped("run-0000", EPOCH_NOON_UTC, "coil temperature",
-                                                "thermistor 71.2 C above the 70 C limit",
-                                                {"coil_temperature_c": 71.2}))
-        await wait_for(pilot, lambda: app.state.latch_state == "tripped", 5, "the trip")
+        await start_run(pilot, "fid-sudden", {"shots": "2"})
+        await wait_for(pilot, lambda: app.state.run is not None and app.state.run.exit_status == "interlock"
+                       and not app.session.running, 30, "the trip")
         await pilot.press("a")
         await wait_for(pilot, lambda: isinstance(app.screen, AckScreen), 5, "the dialog")
 

@@ -18,13 +18,16 @@ SEQUENCES = CONFIGS / "sequences"
 
 
 def make_app(db_path: Path, pace: float = 0.0, **options) -> PrecessApp:
-    """The TUI on the simulated demo rig, starting at EPOCH_NOON_UTC; run ids run-0001, run-0002..."""
+    """The TUI on the simulated demo rig, starting at EPOCH_NOON_UTC; run ids run-0001, run-0002...
+
+    The rig's trip latch is kept beside db_path (a fresh folder per test)."""
     loaded = load_rig(DEMO_RIG)
     clock = VirtualClock(start_epoch_s=EPOCH_NOON_UTC, pace=pace)
     rig = build_rig(loaded, clock)
     counter = itertools.count(1)
     session_options = {"new_run_id": lambda: f"run-{next(counter):04d}", **options}
-    return PrecessApp(loaded, rig, clock, db_path, sequences_dir=SEQUENCES, session_options=session_options)
+    return PrecessApp(loaded, rig, clock, db_path, sequences_dir=SEQUENCES, state_dir=Path(db_path).parent / "state",
+                      session_options=session_options)
 
 
 async def wait_for(pilot, predicate, timeout_s: float = 30.0, what: str = "condition") -> None:

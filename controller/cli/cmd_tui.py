@@ -1,7 +1,9 @@
 """`precess tui --rig RIG`: run the rig and watch the FID live in a terminal (works over SSH).
 
-Keys: ctrl+x emergency stop (every screen), ? help.  The engine runs on a worker thread; when
-the UI ends for any reason the run is stopped and the rig made safe before the command exits.
+Keys: ctrl+x emergency stop (every screen), ? help.  The engine runs on a worker thread under
+the rig's supervisor; a trip stays latched (shared with `precess run` and `precess ack`) until
+it is acknowledged.  When the UI ends for any reason the run is stopped and the rig made safe
+before the command exits.
 """
 
 from __future__ import annotations
@@ -10,11 +12,11 @@ import argparse
 import sys
 
 from controller.cli.cmd_runs import DEFAULT_DB
-from controller.cli.common import REAL_RIG_CAUTION, load_rig, open_rig
+from controller.cli.common import load_rig, open_rig
+from controller.cli.supervision import add_state_dir_argument
 from controller.clock import Clock, VirtualClock, WallClock
 from controller.config.loader import LoadedRig
 from controller.errors import InputError
-from controller.rigmodel import coil_model
 
 EXIT_NOT_SAFE = 3
 
@@ -26,6 +28,7 @@ def register(sub: argparse._SubParsersAction) -> None:
     p.add_argument("--db", default=DEFAULT_DB, help=f"store file (default {DEFAULT_DB})")
     p.add_argument("--pace", type=_pace, default=1.0,
                    help="simulated rig only: seconds of real time per simulated second (1 = real time, 0 = flat out)")
+    add_state_dir_argument(p)
     p.set_defaults(handler=run)
 
 
@@ -54,11 +57,7 @@ def run(args: argparse.Namespace) -> int:
         raise InputError("precess tui needs a terminal (stdout is not a TTY); use `precess run` in scripts")
     clock = clock_for(loaded, args.pace)
     rig = open_rig(loaded, clock)
-    if not rig.simulated:
-        current = loaded.config.limits.max_current_a
-        energy = 0.5 * coil_model(loaded.config.coil).inductance_h * current**2
-        print(REAL_RIG_CAUTION.format(current=current, energy=energy))
-    app = PrecessApp(loaded, rig, clock, args.db, sequences_dir=args.sequences)
+    app = PrecessApp(loaded, rig, clock, args.db, sequences_dir=args.sequences, state_dir=args.state_dir)
     try:
         app.run()
     finally:

@@ -19,13 +19,13 @@ from textual.app import App
 from textual.binding import Binding
 from textual.message import Message
 
-from controller.cli.common import predicted_larmor_hz
+from controller.cli.common import predicted_larmor_hz, real_rig_caution
 from controller.clock import Clock
 from controller.config.loader import LoadedRig
 from controller.errors import PrecessError
 from controller.rig import Rig
-from controller.rigmodel import coil_thermal_model
-from controller.tui.latch import STATE_TRIPPED, TripLatch
+from controller.cli.supervision import latch_for, supervised_engine
+from controller.tui.latch import STATE_TRIPPED, PersistentLatch
 from controller.tui.adapter import LiveStack
 from controller.tui.plan import find_sequences
 from controller.tui.screens import AckScreen, ConfirmQuitScreen, HelpScreen, PlanScreen, WatchScreen
@@ -57,7 +57,7 @@ class PrecessApp(App):
     ]
 
     def __init__(self, loaded: LoadedRig, rig: Rig, clock: Clock, db_path: str | Path,
-                 sequences_dir: str | Path | None = None, latch: TripLatch | None = None,
+                 sequences_dir: str | Path | None = None, state_dir: str | Path | None = None,
                  session_options: dict[str, Any] | None = None) -> None:
         super().__init__()
         self.loaded = loaded
@@ -65,16 +65,21 @@ class PrecessApp(App):
         self.clock = clock
         self.db_path = str(db_path)
         self.sequences_dir = Path(sequences_dir) if sequences_dir else default_sequences_dir(loaded)
-        thermal = coil_thermal_model(loaded.config.coil)
-        self.state = LiveState(rig_name=loaded.config.name, simulated=rig.simulated, thermal=thermal,
-                               predicted_temperature_c=loaded.config.coil.ambient_c)
+        self.state = LiveState(rig_name=loaded.config.name, simulated=rig.simulated)
         self._inbox: collections.deque = collections.deque()
         self._inbox_lock = threading.Lock()
         self._wake_pending = False
         mains_hz = loaded.site.mains_hz if loaded.site is not None else DEFAULT_MAINS_HZ
         live_stack = LiveStack(mains_hz=mains_hz, larmor_guess_hz=predicted_larmor_hz(loaded))
-        self.session = Session(loaded, rig, clock, self.db_path, self._post_from_thread, latch=latch,
-                               live_stack=live_stack, **(session_options or {}))
+        latch = PersistentLatch(latch_for(loaded, str(state_dir) if state_dir is not None else None))
+
+        def supervised(store: Any) -> Any:
+            return supervised_engine(loaded, rig, clock, store, latch.file)
+
+        options = {"latch": latch, "engine_factory": supervised, **(session_options or {})}
+        self.session = Session(loaded, rig, clock, self.db_path, self._post_from_thread, live_stack=live_stack,
+                               **options)
+        self.state.latch_state, self.state.trip_reason = latch.state, latch.trip_reason
         self._quitting = False
 
     # ---- plumbing ------------------------------------------------------------------------
@@ -89,10 +94,13 @@ class PrecessApp(App):
 
     def on_mount(self) -> None:
         self.push_screen(WatchScreen())
+        if self.state.latch_state == STATE_TRIPPED:
+            self.state.say(f"latched trip: {self.state.trip_reason}", alarm=True)
         if self.rig.simulated:
             self.state.say("simulated rig: nothing is energised")
         else:
-            self.state.say("REAL RIG: the coil carries amps and stores energy; see safety.md", alarm=True)
+            for line in reversed(real_rig_caution(self.loaded.config, self.loaded.config.limits.max_current_a).splitlines()):
+                self.state.say(line.strip(), alarm=line.startswith("CAUTION"))
         self.set_interval(1.0 / TICK_HZ, self._tick)
 
     def on_events_waiting(self, message: EventsWaiting) -> None:

@@ -75,7 +75,7 @@ def status_line(state: LiveState, width: int) -> Text:
     if state.latch_state == STATE_TRIPPED:
         right.append(" TRIPPED · a: ack ", ALARM)
     else:
-        right.append("supervisor ok")
+        right.append("supervisor armed")
     right.append(" " + utc_hms(state.clock_s) + " ", QUIET)
     left.truncate(max(0, width - len(right)), overflow="ellipsis", pad=True)
     return left + right
@@ -104,21 +104,27 @@ def heartbeat(state: LiveState, wall_s: float) -> Text:
     return Text(f"beat  {age:.1f} s ago")
 
 
+def _c(value: float | None) -> str:
+    return f"{value:5.1f}" if value is not None else "  n/a"
+
+
 def rig_lines(state: LiveState, wall_s: float) -> list[Text]:
+    """Coil current and voltage; coil temperature measured (thermistor, resistance) and from the
+    supervisor's model (now, and at the end of the present pulse); battery; heartbeat; supervisor."""
     r = state.readings
     current = r.get("current_a", 0.0)
     lines = [Text(f"coil  {current:5.2f} A  {r.get('voltage_v', 0.0):5.1f} V",
                   Style(bold=True) if current > 0.05 else CALM)]
-    measured = r.get("coil_temperature_c")
-    measured_text = f"{measured:5.1f}" if measured is not None else "  n/a"
-    lines.append(Text(f"temp  {measured_text} °C  model {state.predicted_temperature_c:5.1f}"))
+    lines.append(Text(f"temp  {_c(r.get('coil_temperature_c'))} °C  R {_c(r.get('resistance_temperature_c'))}"))
+    lines.append(Text(f"model {_c(r.get('model_temperature_c'))} °C  end {_c(r.get('predicted_temperature_c'))}"))
     if "battery_v" in r:
         lines.append(Text(f"batt  {r['battery_v']:5.1f} V"))
     lines.append(heartbeat(state, wall_s))
     if state.latch_state == STATE_TRIPPED:
         lines.append(Text("TRIPPED: " + state.trip_reason, ALARM))
     else:
-        lines.append(Text("supervisor: clear"))
+        duty = r.get("duty_cycle")
+        lines.append(Text("supervisor armed" + (f" · duty {100 * duty:.0f} %" if duty is not None else "")))
     return lines
 
 

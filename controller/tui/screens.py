@@ -14,6 +14,8 @@ from textual.screen import ModalScreen, Screen
 from textual.widgets import DataTable, Input, OptionList, Static
 from textual.widgets.option_list import Option
 
+from controller.cli.common import real_rig_caution
+from controller.sequences.timeline import Polarise
 from controller.tui.form import FormRow, with_text
 from controller.tui.keys import HELP_TEXT, PLAN_KEYS, WATCH_KEYS
 from controller.tui.panels import ALARM
@@ -140,7 +142,7 @@ class PlanScreen(LiveScreen):
         if self.current is None or self.current.spec is None:
             return
         self.check = check_rows(type(self.current.spec), self.rows(), self.app.loaded)  # type: ignore[attr-defined]
-        self.show_verdict(verdict_text(self.check, self.app.loaded.config))  # type: ignore[attr-defined]
+        self.show_verdict(verdict_text(self.check, self.app.loaded.config, self.app.rig.simulated))  # type: ignore
 
     def show_verdict(self, text: Text) -> None:
         self.query_one("#verdict", Static).update(text)
@@ -180,8 +182,8 @@ class PlanScreen(LiveScreen):
             self.app.session.remove(len(queued) - 1)  # type: ignore[attr-defined]
 
 
-def verdict_text(check: PlanCheck, rig_config) -> Text:
-    """READY / REFUSED / INVALID with the reasons, then the timeline in words."""
+def verdict_text(check: PlanCheck, rig_config, simulated: bool) -> Text:
+    """READY / REFUSED / INVALID with the reasons, a caution for a real coil, the timeline in words."""
     text = Text()
     if check.error:
         text.append("INVALID", ALARM)
@@ -197,6 +199,9 @@ def verdict_text(check: PlanCheck, rig_config) -> Text:
         text.append(f" {len(check.timeline.shots)} shots, {check.timeline.duration_s:.1f} s;"
                     f" coil peak {check.peak_temperature_c:.1f} °C (limit {rig_config.limits.max_coil_temperature_c:g})"
                     " · +: queue it\n")
+        if not simulated:
+            current = max((e.current_a for s in check.timeline.shots for e in s.of_kind(Polarise)), default=0.0)
+            text.append(real_rig_caution(rig_config, current).splitlines()[0] + "\n", ALARM)
     text.append("\n".join(check.description), Style(dim=True))
     return text
 

@@ -24,6 +24,7 @@ from controller.checks import check_all
 from controller.clock import Clock
 from controller.config.loader import LoadedRig
 from controller.engine import Engine
+from controller.errors import PrecessError
 from controller.records import EXIT_COMPLETED, InterlockTripped, Record, RunFinished, RunStarted, ShotAcquired
 from controller.rig import Rig
 from controller.sequences.timeline import Timeline
@@ -81,7 +82,7 @@ class Session:
     """Owns the engine, its worker threads and the run queue for one rig.
 
     engine_factory(store) builds the Engine of one run with the store as its critical sink
-    (the default: a plain Engine; a supervised one plugs in here).
+    (the app passes a supervised one; the default is a plain Engine).
     """
 
     def __init__(self, loaded: LoadedRig, rig: Rig, clock: Clock, db_path: str, notify: Notify,
@@ -241,6 +242,10 @@ class Session:
                 run_id = self.new_run_id()
                 try:
                     outcome = engine.run(item.timeline, item.config_snapshot, run_id=run_id)
+                except PrecessError as exc:  # the supervisor refused before anything was energised
+                    self.notify(Notice(f"refused {item.label}: {exc}", alarm=True))
+                    self.notify(LatchChanged(self.latch.state, self.latch.trip_reason))
+                    return False
                 finally:
                     self.engine = None
                 if self._started_run_id != run_id:  # no RunStarted reached us: say why

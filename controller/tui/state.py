@@ -2,8 +2,8 @@
 
 `LiveState.apply(event, wall_s)` folds one event in and returns the names of the parts that
 changed, so the app redraws only those.  No driver is ever asked anything: the rig status is
-the latest `StatusSample`, and the predicted coil temperature is the rig's thermal model
-(controller.physics.thermal) stepped with the measured current between samples.
+the latest `StatusSample`, which carries the supervisor's derived values too (its thermal
+model's coil temperature now and at the end of the present pulse, duty cycle...).
 """
 
 from __future__ import annotations
@@ -12,7 +12,6 @@ import collections
 from dataclasses import dataclass, field
 from typing import Any
 
-from controller.physics.thermal import ThermalModel
 from controller.records import InterlockTripped, RunFinished, RunStarted, ShotAcquired, ShotAnalysed, StatusSample
 from controller.tui.adapter import FitSummary, LiveViews, fit_from_result
 from controller.tui.latch import STATE_CLEAR, STATE_TRIPPED
@@ -50,8 +49,6 @@ class HistoryPoint:
 class LiveState:
     rig_name: str
     simulated: bool
-    thermal: ThermalModel
-    predicted_temperature_c: float
     run: RunProgress | None = None
     readings: dict[str, float] = field(default_factory=dict)
     status_at_s: float | None = None
@@ -93,14 +90,14 @@ class LiveState:
 
     def _on_RunStarted(self, e: RunStarted) -> set[str]:
         label, duration = self._pending_label
-        self._advance_model(e.started_at_s, 0.0)
+        self.status_at_s = e.started_at_s
         self.run = RunProgress(run_id=e.run_id, label=label or e.sequence_name, shots_planned=e.shots_planned,
                                started_at_s=e.started_at_s, planned_duration_s=duration, latest_at_s=e.started_at_s)
         self.say(f"run {e.run_id} started: {self.run.label}")
         return {"run", "status"}
 
     def _on_StatusSample(self, e: StatusSample) -> set[str]:
-        self._advance_model(e.at_s, self.readings.get("current_a", 0.0))
+        self.status_at_s = e.at_s
         self.readings = dict(e.readings)
         if self.run is not None and e.run_id == self.run.run_id:
             self.run.latest_at_s = max(self.run.latest_at_s, e.at_s)
@@ -115,7 +112,7 @@ class LiveState:
         return {"run"}
 
     def _on_InterlockTripped(self, e: InterlockTripped) -> set[str]:
-        self._advance_model(e.at_s, self.readings.get("current_a", 0.0))
+        self.status_at_s = e.at_s
         self.latch_state, self.trip_reason = STATE_TRIPPED, f"{e.check}: {e.reason}"
         self.say(f"TRIP {self.trip_reason}", alarm=True)
         return {"latch", "log", "status"}
@@ -124,7 +121,7 @@ class LiveState:
         if self.run is not None and e.run_id == self.run.run_id:
             self.run.exit_status, self.run.reason = e.exit_status, e.reason
             self.run.latest_at_s = max(self.run.latest_at_s, e.finished_at_s)
-        self._advance_model(e.finished_at_s, self.readings.get("current_a", 0.0))
+        self.status_at_s = e.finished_at_s
         self.readings = {**self.readings, "current_a": 0.0, "voltage_v": 0.0}
         self.say(f"run {e.run_id} {e.exit_status}: {e.reason}", alarm=e.exit_status not in ("completed", "stopped"))
         for failure in e.safe_state_failures:
@@ -161,11 +158,3 @@ class LiveState:
     def _on_Notice(self, e: Notice) -> set[str]:
         self.say(e.text, e.alarm)
         return {"log"}
-
-    def _advance_model(self, at_s: float, current_a: float) -> None:
-        """Step the thermal model from the previous status time to at_s holding current_a."""
-        if self.status_at_s is not None and at_s > self.status_at_s:
-            self.predicted_temperature_c = self.thermal.step(self.predicted_temperature_c, current_a,
-                                                             at_s - self.status_at_s)
-        if self.status_at_s is None or at_s > self.status_at_s:
-            self.status_at_s = at_s
