@@ -5,7 +5,7 @@ VENV   := .venv
 BIN    := $(VENV)/bin
 STAMP  := $(VENV)/.installed
 
-.PHONY: demo test venv bench clean
+.PHONY: demo test venv bench clean tui
 
 $(BIN)/python:
 	$(PYTHON) -m venv $(VENV)
@@ -19,6 +19,9 @@ venv: $(STAMP)
 
 demo: $(STAMP)
 	$(BIN)/precess run configs/sequences/fid-sudden.toml --rig configs/rigs/demo-sim.toml --db demo-data/demo.sqlite
+
+tui: $(STAMP)
+	$(BIN)/precess tui --rig configs/rigs/demo-sim.toml --db demo-data/demo.sqlite
 
 test: $(STAMP)
 	$(BIN)/python -m pytest $(PYTEST_ARGS)
