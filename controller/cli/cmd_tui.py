@@ -19,6 +19,7 @@ from controller.config.loader import LoadedRig
 from controller.errors import InputError
 
 EXIT_NOT_SAFE = 3
+EXIT_SIGNALLED = 130  # as for Ctrl-C in the other commands
 
 
 def register(sub: argparse._SubParsersAction) -> None:
@@ -59,12 +60,17 @@ def run(args: argparse.Namespace) -> int:
     rig = open_rig(loaded, clock)
     app = PrecessApp(loaded, rig, clock, args.db, sequences_dir=args.sequences, state_dir=args.state_dir)
     try:
-        app.run()
+        app.run()  # SIGHUP (a dropped SSH link) and SIGTERM end it like q: run stopped first
     finally:
         finished = app.session.close()
         failures = rig.make_safe()  # the engine already did; this covers a UI that died mid-run
-    for failure in failures:
-        print(f"precess: rig not confirmed safe: {failure}", file=sys.stderr)
-    if not finished:
-        print("precess: the engine did not finish in time; check the rig", file=sys.stderr)
-    return EXIT_NOT_SAFE if failures or not finished else 0
+        for failure in failures:
+            print(f"precess: rig not confirmed safe: {failure}", file=sys.stderr)
+        if not finished:
+            print("precess: the engine did not finish in time; check the rig", file=sys.stderr)
+    if failures or not finished:
+        return EXIT_NOT_SAFE
+    if app.ended_by_signal:
+        print(f"precess: {app.ended_by_signal}; the run was stopped and the rig made safe", file=sys.stderr)
+        return EXIT_SIGNALLED
+    return 0

@@ -9,7 +9,9 @@ dialog and while typing.
 
 from __future__ import annotations
 
+import asyncio
 import collections
+import signal
 import threading
 import time
 from pathlib import Path
@@ -81,6 +83,7 @@ class PrecessApp(App):
                                **options)
         self.state.latch_state, self.state.trip_reason = latch.state, latch.trip_reason
         self._quitting = False
+        self.ended_by_signal = ""
 
     # ---- plumbing ------------------------------------------------------------------------
     def _post_from_thread(self, payload: Any) -> None:
@@ -102,6 +105,16 @@ class PrecessApp(App):
             for line in reversed(real_rig_caution(self.loaded.config, self.loaded.config.limits.max_current_a).splitlines()):
                 self.state.say(line.strip(), alarm=line.startswith("CAUTION"))
         self.set_interval(1.0 / TICK_HZ, self._tick)
+        if threading.current_thread() is threading.main_thread():
+            loop = asyncio.get_running_loop()
+            for signum, why in ((signal.SIGHUP, "the terminal hung up"), (signal.SIGTERM, "terminated")):
+                loop.add_signal_handler(signum, self._end_by_signal, why)
+
+    def _end_by_signal(self, why: str) -> None:
+        """SIGHUP (e.g. a dropped SSH link) or SIGTERM: stop the run, then leave once it has ended."""
+        self.ended_by_signal = why
+        self.session.stop(why)
+        self._quitting = True
 
     def on_events_waiting(self, message: EventsWaiting) -> None:
         with self._inbox_lock:
