@@ -65,6 +65,12 @@ def prepare_run(sequence_path: str, loaded: LoadedRig, *, shots: int | None = No
     spec = load_sequence(sequence_path)
     if shots is not None:
         spec = with_shots(spec, shots)
+    return prepare_spec(spec, sequence_path, loaded, store=store, larmor_hz=larmor_hz, larmor_source=larmor_source)
+
+
+def prepare_spec(spec: Any, sequence_path: str, loaded: LoadedRig, *, store: Store | None = None,
+                 larmor_hz: float | None = None, larmor_source: str = "") -> PreparedRun:
+    """prepare_run for a spec already in hand (e.g. edited in the TUI); sequence_path locates its calibration."""
     if larmor_hz is None:
         larmor_hz, larmor_source = choose_larmor(spec, loaded, store)
     cal_path = calibration_path(spec, sequence_path)

@@ -82,11 +82,11 @@ def test_optional_table_left_empty_is_absent_and_partly_filled_names_the_missing
 def test_checks_are_precess_checks_and_only_a_ready_plan_can_be_queued():
     loaded = load_rig(DEMO_RIG)
     (entry,) = [s for s in find_sequences(CONFIGS / "sequences") if s.label == "fid-sudden"]
-    ready = check_rows(type(entry.spec), form_of(entry), loaded)
+    ready = check_rows(type(entry.spec), form_of(entry), loaded, entry.path)
     assert ready.ready and ready.peak_temperature_c > loaded.config.coil.ambient_c
     item = queued_run(ready, loaded, entry.path)
     assert len(item.timeline.shots) == entry.spec.shots and item.config_snapshot["edited_in"] == "precess tui"
-    hot = check_rows(type(entry.spec), with_text(form_of(entry), "polarise.current_a", "3.2"), loaded)
+    hot = check_rows(type(entry.spec), with_text(form_of(entry), "polarise.current_a", "3.2"), loaded, entry.path)
     assert [str(v) for v in hot.violations] == [str(v) for v in check_all(hot.timeline, loaded.config)]
     assert hot.violations and not hot.ready
     with pytest.raises(ValueError):

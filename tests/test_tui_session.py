@@ -41,7 +41,7 @@ def _item(loaded, shots=2, current_a=2.0):
     spec = load_sequence(FID_SUDDEN)
     spec = dataclasses.replace(spec, shots=shots, polarise=dataclasses.replace(spec.polarise, current_a=current_a))
     timeline = compile_sequence(spec, loaded.config.transceiver.sample_rate_hz)
-    return QueuedRun(f"{spec.name} ×{shots}", spec, timeline, {"sequence": dataclasses.asdict(spec)})
+    return QueuedRun(f"{spec.name} ×{shots}", spec, str(FID_SUDDEN), timeline, {"sequence": dataclasses.asdict(spec)})
 
 
 def _wait(predicate, timeout_s=30.0):
@@ -115,3 +115,29 @@ def test_close_stops_an_active_run_and_leaves_the_coil_off(tmp_path):
     finished = [e for e in events if isinstance(e, RunFinished)]
     assert finished and finished[-1].exit_status == "stopped"
     assert coil_is_off(rig)
+
+
+def test_a_cpmg_run_shows_its_kinds_headline_live_and_stores_the_same_analysis(tmp_path):
+    from pathlib import Path
+
+    from controller.runner import analysis_context
+    from controller.store import Store
+    from controller.tui.adapter import LiveStack, LiveViews
+    from controller.tui.plan import check_rows, find_sequences, form_of, queued_run
+
+    from tests.conftest import CONFIGS
+
+    loaded, rig, session, events = _session(tmp_path)
+    session.live_stack = LiveStack(50.0, 2054.3, context=analysis_context(loaded))
+    (entry,) = [s for s in find_sequences(Path(CONFIGS / "sequences")) if s.label == "cpmg-t2"]
+    check = check_rows(type(entry.spec), form_of(entry), loaded, entry.path)
+    session.enqueue(queued_run(check, loaded, entry.path))
+    session.go()
+    _wait(lambda: not session.running)
+    session.close()
+    views = [e for e in events if isinstance(e, LiveViews)]
+    assert views[-1].kind == "cpmg" and views[-1].headline["quantity"] == "T2"
+    with Store(tmp_path / "s.sqlite") as store:
+        (run,) = store.runs()
+        (result,) = store.results(run["run_id"])
+    assert result["kind"] == "cpmg" and result["headline"]["text"] == views[-1].headline["text"]

@@ -2,8 +2,9 @@
 
 Everything the TUI shows that is computed from samples comes from here: the acquisition
 window of a shot, its demodulated envelope, the amplitude spectrum around the Larmor line,
-the running stack and the fit of the stack.  The fit is delegated to `controller.analysis`;
-switching to another analysis pipeline means editing this module only.
+the running stack and the fit of the stack (or, for kinds other than FID, that kind's
+analysis of the shots so far).  The fits are delegated to `controller.analysis`; switching
+to another analysis pipeline means editing this module only.
 
 All functions are pure (arrays in, new arrays out); `LiveStack` is the one piece of state,
 a running sum owned by the analysis thread.
@@ -13,19 +14,23 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass
+from typing import Any
 
 import numpy as np
 from scipy.signal import fftconvolve
 
 from controller.analysis.fit import fit_damped_sine, spectrum_peak_hz
-from controller.analysis.run_analysis import DEFAULT_BAND_HZ, analyse_shots, window_of
+from controller.analysis.by_kind import AnalysisContext, analyse_run
+from controller.analysis.demodulate import rotate_receiver_phase
+from controller.analysis.run_analysis import DEFAULT_BAND_HZ
+from controller.analysis.shots import receiver_phase_rad
 from controller.physics.constants import gamma_hz_per_nt
 from controller.records import ShotAcquired
+from controller.sequences.timeline import Timeline
 
 ENVELOPE_SMOOTHING_S = 0.05  # Gaussian sigma: -3 dB near 2.7 Hz off the reference
 SPECTRUM_HALF_SPAN_HZ = 120.0
 DISPLAY_BINS = 1500
-RESULT_KIND = "fid"  # the kind `precess run` stores its result under
 
 
 @dataclass(frozen=True)
@@ -75,6 +80,8 @@ class LiveViews:
     shots_stacked: int
     fit: FitSummary | None
     fit_note: str
+    kind: str = "fid"
+    headline: dict | None = None  # {quantity, value, sd, unit, text} for kinds other than fid
 
 
 # ---- pure functions ------------------------------------------------------------------------
@@ -185,13 +192,6 @@ def fit_window(window_v: np.ndarray, sample_rate_hz: float, offset_s: float, sho
                       snr=float(fit.snr), snr_sd=float(snr_sd))
 
 
-def stored_run_result(shots: list) -> dict:
-    """The result of a whole run from its stored shots, exactly as `precess run` computes it."""
-    windows = [window_of(s.samples, s.channel_names, s.sample_rate_hz, s.acquire_start_sample, s.acquire_samples,
-                         s.dead_time_s) for s in shots]
-    return analyse_shots(windows)
-
-
 def fit_from_result(result: dict) -> FitSummary | None:
     """A FitSummary from an analysis result dict (a ShotAnalysed record); None if keys lack."""
     try:
@@ -209,26 +209,37 @@ def fit_from_result(result: dict) -> FitSummary | None:
 class LiveStack:
     """Running mean of a run's acquisition windows, and the views after each shot.
 
-    Shots marked bad, or whose window length differs from the first, are left out of the
-    stack (they are still shown as the latest shot).
+    Each window is turned back by its shot's receiver phase (phase cycling) before it is
+    stacked, as the run's analysis does.  Shots marked bad, or whose window length differs
+    from the first, are left out of the stack (they are still shown as the latest shot).
+    The fit panel shows the damped-sine fit of the stack for a FID run; for any other kind
+    it shows the headline of that kind's analysis of the shots so far
+    (controller.analysis.by_kind), which may need several shots before it can fit.
     """
 
     def __init__(self, mains_hz: float = 50.0, larmor_guess_hz: float | None = None,
-                 band_hz: tuple[float, float] = DEFAULT_BAND_HZ) -> None:
+                 band_hz: tuple[float, float] = DEFAULT_BAND_HZ, context: AnalysisContext | None = None) -> None:
         self.mains_hz = mains_hz
         self.larmor_guess_hz = larmor_guess_hz
         self.band_hz = band_hz
         if larmor_guess_hz is not None:
             self.band_hz = (max(band_hz[0], larmor_guess_hz - 300.0), min(band_hz[1], larmor_guess_hz + 300.0))
+        self.context = context or AnalysisContext(mains_hz=mains_hz)
         self.reset("")
 
-    def reset(self, run_id: str) -> None:
+    def reset(self, run_id: str, timeline: Timeline | None = None, spec: Any = None) -> None:
         self.run_id = run_id
+        self.timeline, self.spec = timeline, spec
+        self.plans = {p.index: p for p in timeline.shots} if timeline is not None else {}
+        self.shots: list[ShotAcquired] = []  # kept for the analysis of kinds other than fid
         self.sum_v: np.ndarray | None = None
         self.count = 0
         self.offset_s = 0.0
-        self.sample_rate_hz = 0.0
         self.fit: FitSummary | None = None
+
+    @property
+    def kind(self) -> str:
+        return self.timeline.sequence_kind if self.timeline is not None else "fid"
 
     def _reference_hz(self, window_v: np.ndarray, sample_rate_hz: float) -> float:
         if self.fit is not None and self.band_hz[0] <= self.fit.frequency_hz <= self.band_hz[1]:
@@ -244,26 +255,40 @@ class LiveStack:
             self.reset(record.run_id)
         fs = record.sample_rate_hz
         window, offset_s = acquisition_window(record)
+        plan = self.plans.get(record.shot_index)
+        if plan is not None:
+            window = rotate_receiver_phase(window, receiver_phase_rad(plan))
         if not record.bad and (self.sum_v is None or self.sum_v.size == window.size):
             self.sum_v = window.copy() if self.sum_v is None else self.sum_v + window
             self.count += 1
-            self.offset_s, self.sample_rate_hz = offset_s, fs
+            self.offset_s = offset_s
+        if self.kind != "fid":
+            self.shots.append(record)
         if not views:
             return None
-        note = ""
-        if self.sum_v is not None:
-            try:
-                self.fit = fit_window(self.sum_v / self.count, fs, self.offset_s, self.count, self.band_hz)
-            except (ValueError, ArithmeticError, np.linalg.LinAlgError) as exc:
-                self.fit, note = None, f"no fit: {exc}"
+        note, headline = self._fit(fs)
         reference = self._reference_hz(window, fs)
-        shot = trace_of(window, fs, offset_s, reference)
-        shot_spectrum = spectrum_near(window, fs, reference, self.mains_hz)
         stack = stack_spectrum = None
         if self.sum_v is not None:
             mean = self.sum_v / self.count
             stack = trace_of(mean, fs, self.offset_s, reference)
             stack_spectrum = spectrum_near(mean, fs, reference, self.mains_hz)
-        return LiveViews(run_id=record.run_id, shot_index=record.shot_index, at_s=record.started_at_s, shot=shot,
-                         shot_spectrum=shot_spectrum, stack=stack, stack_spectrum=stack_spectrum,
-                         shots_stacked=self.count, fit=self.fit, fit_note=note)
+        return LiveViews(run_id=record.run_id, shot_index=record.shot_index, at_s=record.started_at_s,
+                         shot=trace_of(window, fs, offset_s, reference),
+                         shot_spectrum=spectrum_near(window, fs, reference, self.mains_hz), stack=stack,
+                         stack_spectrum=stack_spectrum, shots_stacked=self.count, fit=self.fit, fit_note=note,
+                         kind=self.kind, headline=headline)
+
+    def _fit(self, sample_rate_hz: float) -> tuple[str, dict | None]:
+        """(note, headline): the stack's FID fit, or the kind's headline from the shots so far."""
+        try:
+            if self.kind != "fid":
+                result = analyse_run(self.timeline, self.spec, self.shots, self.context)
+                return "", result.get("headline")
+            if self.sum_v is not None:
+                self.fit = fit_window(self.sum_v / self.count, sample_rate_hz, self.offset_s, self.count,
+                                      self.band_hz)
+        except (ValueError, ArithmeticError, np.linalg.LinAlgError) as exc:
+            self.fit = None
+            return f"no fit yet: {exc}", None
+        return "", None

@@ -21,7 +21,8 @@ from textual.app import App
 from textual.binding import Binding
 from textual.message import Message
 
-from controller.cli.common import predicted_larmor_hz, real_rig_caution
+from controller.cli.common import real_rig_caution
+from controller.runner import analysis_context, predicted_larmor_hz
 from controller.clock import Clock
 from controller.config.loader import LoadedRig
 from controller.errors import PrecessError
@@ -72,7 +73,8 @@ class PrecessApp(App):
         self._inbox_lock = threading.Lock()
         self._wake_pending = False
         mains_hz = loaded.site.mains_hz if loaded.site is not None else DEFAULT_MAINS_HZ
-        live_stack = LiveStack(mains_hz=mains_hz, larmor_guess_hz=predicted_larmor_hz(loaded))
+        live_stack = LiveStack(mains_hz=mains_hz, larmor_guess_hz=predicted_larmor_hz(loaded),
+                               context=analysis_context(loaded))
         latch = PersistentLatch(latch_for(loaded, str(state_dir) if state_dir is not None else None))
 
         def supervised(store: Any) -> Any:

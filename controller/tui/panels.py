@@ -81,7 +81,17 @@ def status_line(state: LiveState, width: int) -> Text:
     return left + right
 
 
-def fit_lines(fit: FitSummary | None, note: str) -> list[Text]:
+def headline_lines(kind: str, headline: dict) -> list[Text]:
+    """A kind's headline (controller.analysis.by_kind): the quantity with its sd, then the details."""
+    lines = [Text(f"{kind} run, shots so far", QUIET),
+             Text(f"{headline['quantity']} {format_pm(headline['value'], headline['sd'] or math.nan, headline['unit'])}",
+                  Style(bold=True))]
+    return lines + [Text(part.strip()) for part in str(headline.get("text", "")).split(",") if part.strip()]
+
+
+def fit_lines(fit: FitSummary | None, note: str, kind: str = "fid", headline: dict | None = None) -> list[Text]:
+    if headline is not None:
+        return headline_lines(kind, headline)
     if fit is None:
         return [Text(note or "no fit yet: waiting for shots", QUIET)]
     return [

@@ -1,4 +1,4 @@
-"""Plan a run from the TUI: list sequence files, rebuild an edited spec, compile and check it.
+"""Plan a run from the TUI: list sequence files, rebuild an edited spec, prepare and check it.
 
 The checks are `controller.checks.check_all`, the same ones `precess check` prints and
 `precess run` enforces; a plan with a violation cannot be queued.
@@ -11,10 +11,10 @@ from pathlib import Path
 from typing import Any
 
 from controller.checks import Violation, check_all, predicted_peak_temperature_c
-from controller.cli.common import config_snapshot, predicted_larmor_hz
+from controller.cli.common import config_snapshot
 from controller.config.loader import LoadedRig, load_sequence
 from controller.errors import PrecessError
-from controller.sequences.compile import compile_sequence
+from controller.runner import prepare_spec
 from controller.sequences.describe import describe_timeline
 from controller.sequences.timeline import Timeline
 from controller.tui.form import FormRow, rows_of, spec_from_rows
@@ -67,11 +67,16 @@ def form_of(entry: SequenceFile) -> list[FormRow]:
     return rows_of(type(entry.spec), entry.spec)
 
 
-def check_rows(spec_class: type, rows: list[FormRow], loaded: LoadedRig) -> PlanCheck:
-    """Rebuild the spec from rows, compile it for the rig's converter clock, run every check."""
+def check_rows(spec_class: type, rows: list[FormRow], loaded: LoadedRig, source: Path) -> PlanCheck:
+    """Rebuild the spec from rows, prepare it as `precess run` does (pulse frequency, calibration
+    beside the sequence file, compile for the rig's converter clock) and run every check.
+
+    Without a store the pulse frequency is the site's prediction; at run time the session
+    prepares the spec again with the store open, so "last measurement" applies there.
+    """
     try:
         spec = spec_from_rows(spec_class, rows)
-        timeline = compile_sequence(spec, loaded.config.transceiver.sample_rate_hz, predicted_larmor_hz(loaded))
+        timeline = prepare_spec(spec, str(source), loaded).timeline
     except (PrecessError, ValueError, TypeError) as exc:
         return PlanCheck(None, None, str(exc), (), None, ())
     violations = tuple(check_all(timeline, loaded.config))
@@ -86,4 +91,5 @@ def queued_run(check: PlanCheck, loaded: LoadedRig, source: Path) -> QueuedRun:
     snapshot = config_snapshot(loaded, check.spec, str(source))
     snapshot["edited_in"] = "precess tui"
     label = f"{check.spec.name} ×{len(check.timeline.shots)}"
-    return QueuedRun(label=label, spec=check.spec, timeline=check.timeline, config_snapshot=snapshot)
+    return QueuedRun(label=label, spec=check.spec, source=str(source), timeline=check.timeline,
+                     config_snapshot=snapshot)

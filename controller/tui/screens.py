@@ -141,7 +141,8 @@ class PlanScreen(LiveScreen):
     def recheck(self) -> None:
         if self.current is None or self.current.spec is None:
             return
-        self.check = check_rows(type(self.current.spec), self.rows(), self.app.loaded)  # type: ignore[attr-defined]
+        self.check = check_rows(type(self.current.spec), self.rows(), self.app.loaded,  # type: ignore[attr-defined]
+                                self.current.path)
         self.show_verdict(verdict_text(self.check, self.app.loaded.config, self.app.rig.simulated))  # type: ignore
 
     def show_verdict(self, text: Text) -> None:

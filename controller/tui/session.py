@@ -29,7 +29,8 @@ from controller.records import EXIT_COMPLETED, InterlockTripped, Record, RunFini
 from controller.rig import Rig
 from controller.sequences.timeline import Timeline
 from controller.store import Store
-from controller.tui.adapter import RESULT_KIND, LiveStack, stored_run_result
+from controller.runner import PreparedRun, finish_run, prepare_spec
+from controller.tui.adapter import LiveStack
 from controller.tui.latch import STATE_TRIPPED, RecordLatch, TripLatch
 
 log = logging.getLogger(__name__)
@@ -43,7 +44,8 @@ class QueuedRun:
 
     label: str
     spec: Any
-    timeline: Timeline
+    source: str  # the sequence file it came from (its folder holds any pulse calibration)
+    timeline: Timeline  # as checked on the plan screen; prepared again when it runs
     config_snapshot: dict[str, Any]
 
 
@@ -67,6 +69,15 @@ class RunBegins:
 
     label: str
     planned_duration_s: float
+
+
+@dataclass(frozen=True)
+class RunContext:
+    """What the live analysis needs to know about a run that has started."""
+
+    run_id: str
+    timeline: Timeline
+    spec: Any
 
 
 @dataclass(frozen=True)
@@ -107,6 +118,7 @@ class Session:
         self._analysis.start()
         self._closed = False
         self._started_run_id = ""
+        self._current: PreparedRun | None = None
 
     def _plain_engine(self, store: Store) -> Engine:
         engine = Engine(self.rig, self.clock)
@@ -225,55 +237,65 @@ class Session:
             self.notify(QueueChanged(self.queued(), False))
 
     def _run_one(self, item: QueuedRun) -> bool:
-        """Run one queued item; True when it completed and the queue may go on."""
+        """Run one queued item as `precess run` does; True when it completed and the queue may go on."""
         if self.latch.state == STATE_TRIPPED:
             self.notify(Notice(f"refused {item.label}: supervisor tripped ({self.latch.trip_reason})", alarm=True))
             return False
-        violations = check_all(item.timeline, self.loaded.config)
-        if violations:
-            self.notify(Notice(f"refused {item.label}: {violations[0]}", alarm=True))
-            return False
-        self.notify(RunBegins(item.label, item.timeline.duration_s))
         try:
             with Store(self.db_path) as store:
-                engine = self.engine_factory(store)
-                engine.best_effort_sinks.append(self._on_record)
-                self.engine = engine
-                run_id = self.new_run_id()
-                try:
-                    outcome = engine.run(item.timeline, item.config_snapshot, run_id=run_id)
-                except PrecessError as exc:  # the supervisor refused before anything was energised
-                    self.notify(Notice(f"refused {item.label}: {exc}", alarm=True))
-                    self.notify(LatchChanged(self.latch.state, self.latch.trip_reason))
+                prepared = prepare_spec(item.spec, item.source, self.loaded, store=store)  # "last" frequency
+                violations = check_all(prepared.timeline, self.loaded.config)
+                if violations:
+                    self.notify(Notice(f"refused {item.label}: {violations[0]}", alarm=True))
                     return False
-                finally:
-                    self.engine = None
-                if self._started_run_id != run_id:  # no RunStarted reached us: say why
-                    self.notify(Notice(f"{item.label} did not start: {outcome.reason}", alarm=True))
-                self._store_result(store, outcome.run_id)
+                outcome = self._engine_run(item, prepared, store)
+                if outcome is None:
+                    return False
+                self._finish(prepared, store, outcome.run_id)
         except Exception as exc:  # noqa: BLE001 - the store could not open or close; reported
             self.notify(Notice(f"run of {item.label} ended in error: {exc}", alarm=True))
             return False
         return outcome.exit_status == EXIT_COMPLETED
 
-    def _store_result(self, store: Store, run_id: str) -> None:
-        """Analyse the stored shots as `precess run` does and keep the result with the run."""
-        shots = [s for s in store.shots(run_id) if not s.bad]
-        if not shots:
-            return
+    def _engine_run(self, item: QueuedRun, prepared: PreparedRun, store: Store) -> Any:
+        """engine.run on this thread; None (with a notice) when the supervisor refused to start."""
+        engine = self.engine_factory(store)
+        engine.best_effort_sinks.append(self._on_record)
+        self.notify(RunBegins(item.label, prepared.timeline.duration_s))
+        self._current = prepared
+        self.engine = engine
+        run_id = self.new_run_id()
         try:
-            store.add_result(run_id, RESULT_KIND, stored_run_result(shots), self.clock.now())
-        except (ValueError, ArithmeticError) as exc:
-            self.notify(Notice(f"run {run_id} stored; its analysis failed: {exc}", alarm=True))
+            outcome = engine.run(prepared.timeline, item.config_snapshot, run_id=run_id)
+        except PrecessError as exc:  # the supervisor refused before anything was energised
+            self.notify(Notice(f"refused {item.label}: {exc}", alarm=True))
+            self.notify(LatchChanged(self.latch.state, self.latch.trip_reason))
+            return None
+        finally:
+            self.engine = None
+        if self._started_run_id != run_id:  # no RunStarted reached us: say why
+            self.notify(Notice(f"{item.label} did not start: {outcome.reason}", alarm=True))
+        return outcome
+
+    def _finish(self, prepared: PreparedRun, store: Store, run_id: str) -> None:
+        """Analyse the stored shots by kind and keep the result, as `precess run` does."""
+        try:
+            result = finish_run(prepared, self.loaded, store, run_id, self.clock.now())
+        except PrecessError as exc:
+            self.notify(Notice(str(exc), alarm=True))
+            return
+        if result.get("headline"):
+            self.notify(Notice(f"run {run_id}: {result['headline']['text']}"))
 
     def _on_record(self, record: Record) -> None:
         """Best-effort sink on the engine's thread: latch, analysis hand-off, UI notification."""
         self.latch.observe(record)
         if isinstance(record, RunStarted):
             self._started_run_id = record.run_id
+            self._shots.put(RunContext(record.run_id, self._current.timeline, self._current.spec))
         if isinstance(record, RunStarted) and self._halt.is_set() and self.engine is not None:
             self.engine.stop("stop requested before the run began")
-        if isinstance(record, (RunStarted, ShotAcquired)):
+        if isinstance(record, ShotAcquired):
             self._shots.put(record)
         self.notify(record)
         if isinstance(record, (InterlockTripped, RunFinished)):
@@ -284,8 +306,8 @@ class Session:
             record = self._shots.get()
             if record is None:
                 return
-            if isinstance(record, RunStarted):
-                self.live_stack.reset(record.run_id)
+            if isinstance(record, RunContext):
+                self.live_stack.reset(record.run_id, record.timeline, record.spec)
                 continue
             try:
                 behind = self._shots.qsize() > 2  # far behind: stack this shot, draw a later one

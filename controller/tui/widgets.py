@@ -72,7 +72,9 @@ class FitPanel(LiveWidget):
     PARTS = frozenset({"fit"})
 
     def render(self) -> Text:
-        return self.fit_lines(panels.fit_lines(self.state.fit, self.state.fit_note))
+        views = self.state.views
+        kind, headline = (views.kind, views.headline) if views is not None else ("fid", None)
+        return self.fit_lines(panels.fit_lines(self.state.fit, self.state.fit_note, kind, headline))
 
 
 class RigPanel(LiveWidget):
