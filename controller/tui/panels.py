@@ -7,6 +7,7 @@ calls for attention, also set in reverse video, so nothing depends on colour.
 from __future__ import annotations
 
 import math
+import textwrap
 import time
 
 from rich.style import Style
@@ -81,17 +82,18 @@ def status_line(state: LiveState, width: int) -> Text:
     return left + right
 
 
-def headline_lines(kind: str, headline: dict) -> list[Text]:
+def headline_lines(kind: str, headline: dict, width: int) -> list[Text]:
     """A kind's headline (controller.analysis.by_kind): the quantity with its sd, then the details."""
     lines = [Text(f"{kind} run, shots so far", QUIET),
              Text(f"{headline['quantity']} {format_pm(headline['value'], headline['sd'] or math.nan, headline['unit'])}",
                   Style(bold=True))]
-    return lines + [Text(part.strip()) for part in str(headline.get("text", "")).split(",") if part.strip()]
+    return lines + [Text(line) for line in textwrap.wrap(str(headline.get("text", "")), max(10, width))]
 
 
-def fit_lines(fit: FitSummary | None, note: str, kind: str = "fid", headline: dict | None = None) -> list[Text]:
+def fit_lines(fit: FitSummary | None, note: str, kind: str = "fid", headline: dict | None = None,
+              width: int = 30) -> list[Text]:
     if headline is not None:
-        return headline_lines(kind, headline)
+        return headline_lines(kind, headline, width)
     if fit is None:
         return [Text(note or "no fit yet: waiting for shots", QUIET)]
     return [

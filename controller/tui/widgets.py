@@ -74,7 +74,8 @@ class FitPanel(LiveWidget):
     def render(self) -> Text:
         views = self.state.views
         kind, headline = (views.kind, views.headline) if views is not None else ("fid", None)
-        return self.fit_lines(panels.fit_lines(self.state.fit, self.state.fit_note, kind, headline))
+        return self.fit_lines(panels.fit_lines(self.state.fit, self.state.fit_note, kind, headline,
+                                               self.content_size.width))
 
 
 class RigPanel(LiveWidget):
