@@ -64,23 +64,28 @@ def test_minmax_reduce_keeps_extremes():
     assert y2.size == 1000 and y2.max() == y.max() and y2.min() == y.min()
 
 
-def test_fit_converts_with_codata_gamma_and_reaches_the_cramer_rao_bound():
+def test_fit_converts_with_codata_gamma_and_its_scatter_is_near_the_cramer_rao_bound():
     rng = np.random.default_rng(11)
     a_v, f_hz, sigma_v = 0.01, 2055.3, 0.004
     t, clean = damped(a_v=a_v, f_hz=f_hz, t2_s=100.0, n=24000)
     fits = [fit_window(clean + sigma_v * rng.standard_normal(t.size), FS, 0.015, 1, (1900.0, 2200.0))
-            for _ in range(3)]
+            for _ in range(30)]
     # source: CODATA 2022 shielded proton gyromagnetic ratio (scipy.constants)
     gamma_hz_per_nt = constants.physical_constants["shielded proton gyromag. ratio in MHz/T"][0] * 1e-3
     for fit in fits:
-        assert fit.field_nt == pytest.approx(fit.frequency_hz / gamma_hz_per_nt, rel=1e-12)
-        assert abs(fit.frequency_hz - f_hz) < 5 * fit.frequency_sd_hz
-    # source: Rife & Boorstyn, IEEE Trans. IT-20:591 (1974): var(omega) = 24 s^2 / (A^2 dt^2 N (N^2 - 1))
+        assert fit.field_nt == pytest.approx(fit.frequency_hz / gamma_hz_per_nt, rel=1e-9)
+    # source: Rife & Boorstyn, IEEE Trans. IT-20:591 (1974): var(omega) = 24 s^2 / (A^2 dt^2 N (N^2 - 1));
+    # the scatter of 30 estimates has a ~13 % standard error, hence the 25 % tolerance
     n, dt = t.size, 1 / FS
     crb_hz = math.sqrt(24 * sigma_v**2 / (a_v**2 * dt**2 * n * (n**2 - 1))) / (2 * math.pi)
-    assert fits[0].frequency_sd_hz == pytest.approx(crb_hz, rel=0.15)
-    # SNR = A / sigma within its own stated uncertainty (a few sd)
-    assert abs(fits[0].snr - a_v / sigma_v) < 5 * fits[0].snr_sd
+    frequencies = np.array([f.frequency_hz for f in fits])
+    assert abs(frequencies.mean() - f_hz) < 3 * crb_hz / math.sqrt(len(fits))
+    assert np.std(frequencies, ddof=1) == pytest.approx(crb_hz, rel=0.25)
+    assert np.mean([f.frequency_sd_hz for f in fits]) == pytest.approx(crb_hz, rel=0.25)
+    # SNR = A / sigma for one shot, and its stated sd agrees with its scatter (common practice, no source)
+    snr = np.array([f.snr for f in fits])
+    assert snr.mean() == pytest.approx(a_v / sigma_v, rel=0.1)
+    assert np.std(snr, ddof=1) == pytest.approx(np.mean([f.snr_sd for f in fits]), rel=0.35)
 
 
 def _shot(run_id, index, signal, bad=False):

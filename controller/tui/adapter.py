@@ -19,18 +19,20 @@ from typing import Any
 import numpy as np
 from scipy.signal import fftconvolve
 
-from controller.analysis.fit import fit_damped_sine, spectrum_peak_hz
-from controller.analysis.by_kind import AnalysisContext, analyse_run
+from controller.analysis.by_kind import AnalysisContext, analyse_run, fid_band
 from controller.analysis.demodulate import rotate_receiver_phase
-from controller.analysis.run_analysis import DEFAULT_BAND_HZ
+from controller.analysis.fid_entry import fid_options, fid_shot, fit_fid
+from controller.analysis.pipeline import DEFAULT_BAND_HZ, AnalysisResult, PreparedShot, analyse_prepared, prepare_shot
 from controller.analysis.shots import receiver_phase_rad
-from controller.physics.constants import gamma_hz_per_nt
+from controller.analysis.sources import shot_from_record
+from controller.errors import PrecessError
 from controller.records import ShotAcquired
 from controller.sequences.timeline import Timeline
 
 ENVELOPE_SMOOTHING_S = 0.05  # Gaussian sigma: -3 dB near 2.7 Hz off the reference
 SPECTRUM_HALF_SPAN_HZ = 120.0
 DISPLAY_BINS = 1500
+LIVE_FIT_MAX_SHOTS = 256  # the live FID fit uses at most the latest this many shots (memory)
 
 
 @dataclass(frozen=True)
@@ -172,24 +174,40 @@ def trace_of(window_v: np.ndarray, sample_rate_hz: float, offset_s: float, refer
     return Trace(time_s=t_sig, signal_v=sig, envelope_time_s=t[::step].copy(), envelope_v=envelope[::step].copy())
 
 
-def fit_window(window_v: np.ndarray, sample_rate_hz: float, offset_s: float, shots: int,
-               band_hz: tuple[float, float], gamma: str | float = "shielded") -> FitSummary:
-    """Fit A exp(-t/T2*) cos(2 pi f t + phi) (controller.analysis.fit) and convert f to field.
+def summary_of(result: AnalysisResult, shots: int) -> FitSummary:
+    """The fit panel's numbers from a pipeline result; ValueError when no FID was detected.
 
-    B = f / (gamma'/2pi), sd(B) = sd(f) / (gamma'/2pi).  SNR = A / sigma with
-    (sd SNR / SNR)^2 = (sd A / A)^2 + 1 / (2 (n - 4)), the second term the relative standard
-    error of a standard deviation estimated from n - 4 degrees of freedom (Gaussian noise;
-    J. R. Taylor, An Introduction to Error Analysis, 2nd ed., 1997, from memory).
+    B and T2* with their sd come from the pipeline (controller.analysis.result).  The SNR's sd:
+    (sd SNR / SNR)^2 = (sd A / A)^2 + 1 / (2 nu), the second term the relative standard error
+    of a noise sd estimated from nu degrees of freedom (Gaussian noise; J. R. Taylor, An
+    Introduction to Error Analysis, 2nd ed., 1997, from memory).  The pipeline estimates the
+    noise from the residual in its fit window: per shot 2 m real values, m = 2 w T bins (w the
+    window's half width, T the record length), less 4 fitted coefficients; nu = S (2 m - 4).
     """
-    fit = fit_damped_sine(window_v, sample_rate_hz, offset_s, band_hz)
-    g = gamma_hz_per_nt(gamma)
-    dof = max(1, window_v.size - 4)
-    rel_a = fit.amplitude_sd / fit.amplitude if fit.amplitude > 0 else math.inf
-    snr_sd = fit.snr * math.sqrt(rel_a**2 + 1.0 / (2.0 * dof))
-    return FitSummary(shots=shots, frequency_hz=fit.frequency_hz, frequency_sd_hz=fit.frequency_sd_hz,
-                      field_nt=fit.frequency_hz / g, field_sd_nt=fit.frequency_sd_hz / g,
-                      t2star_s=float(fit.t2star_s), t2star_sd_s=float(fit.t2star_sd_s),
-                      snr=float(fit.snr), snr_sd=float(snr_sd))
+    if not result.detected:
+        raise ValueError(result.detection_reason or "no FID detected")
+    bins = max(1.0, 2.0 * result.fit_half_width_hz * result.samples_used / result.sample_rate_hz)
+    dof = max(1.0, max(1, result.shots) * (2.0 * bins - 4.0))
+    rel_a = result.amplitude_sd / result.amplitude if result.amplitude > 0 else math.inf
+    snr_sd = result.snr * math.sqrt(rel_a**2 + 1.0 / (2.0 * dof))
+    return FitSummary(shots=shots, frequency_hz=result.frequency_hz, frequency_sd_hz=result.frequency_sd_hz,
+                      field_nt=result.field_nt, field_sd_nt=result.field_sd_nt, t2star_s=result.t2star_s,
+                      t2star_sd_s=result.t2star_sd_s, snr=result.snr, snr_sd=snr_sd)
+
+
+def fit_window(window_v: np.ndarray, sample_rate_hz: float, offset_s: float, shots: int,
+               band_hz: tuple[float, float]) -> FitSummary:
+    """One (stacked) acquisition window through the FID pipeline (analysis.fid_entry.fit_fid)."""
+    return summary_of(fit_fid(window_v, sample_rate_hz, offset_s, band_hz), shots)
+
+
+def peak_hz(window_v: np.ndarray, sample_rate_hz: float, band_hz: tuple[float, float]) -> float:
+    """Frequency of the largest amplitude-spectrum bin inside band_hz."""
+    freqs, amps = amplitude_spectrum(window_v, sample_rate_hz)
+    inside = (freqs >= band_hz[0]) & (freqs <= band_hz[1])
+    if not inside.any():
+        raise ValueError(f"band {band_hz} Hz holds no frequency bin")
+    return float(freqs[inside][np.argmax(amps[inside])])
 
 
 def fit_from_result(result: dict) -> FitSummary | None:
@@ -212,7 +230,8 @@ class LiveStack:
     Each window is turned back by its shot's receiver phase (phase cycling) before it is
     stacked, as the run's analysis does.  Shots marked bad, or whose window length differs
     from the first, are left out of the stack (they are still shown as the latest shot).
-    The fit panel shows the damped-sine fit of the stack for a FID run; for any other kind
+    The fit panel shows, for a FID run, the FID pipeline's joint fit of the shots so far (at
+    most the latest LIVE_FIT_MAX_SHOTS), the same analysis as the stored run's; for any other kind
     it shows the headline of that kind's analysis of the shots so far
     (controller.analysis.by_kind), which may need several shots before it can fit.
     """
@@ -232,6 +251,9 @@ class LiveStack:
         self.timeline, self.spec = timeline, spec
         self.plans = {p.index: p for p in timeline.shots} if timeline is not None else {}
         self.shots: list[ShotAcquired] = []  # kept for the analysis of kinds other than fid
+        self.prepared: list[PreparedShot] = []  # fid: each shot through the pipeline's per-shot steps
+        if timeline is not None and timeline.larmor_hz:
+            self.band_hz = fid_band(timeline)
         self.sum_v: np.ndarray | None = None
         self.count = 0
         self.offset_s = 0.0
@@ -245,7 +267,7 @@ class LiveStack:
         if self.fit is not None and self.band_hz[0] <= self.fit.frequency_hz <= self.band_hz[1]:
             return self.fit.frequency_hz
         try:
-            return spectrum_peak_hz(window_v, sample_rate_hz, self.band_hz)
+            return peak_hz(window_v, sample_rate_hz, self.band_hz)
         except ValueError:
             return self.larmor_guess_hz or 0.5 * sum(self.band_hz)
 
@@ -264,9 +286,11 @@ class LiveStack:
             self.offset_s = offset_s
         if self.kind != "fid":
             self.shots.append(record)
+        elif not record.bad:
+            self._prepare(record, plan)
         if not views:
             return None
-        note, headline = self._fit(fs)
+        note, headline = self._fit()
         reference = self._reference_hz(window, fs)
         stack = stack_spectrum = None
         if self.sum_v is not None:
@@ -279,16 +303,27 @@ class LiveStack:
                          stack_spectrum=stack_spectrum, shots_stacked=self.count, fit=self.fit, fit_note=note,
                          kind=self.kind, headline=headline)
 
-    def _fit(self, sample_rate_hz: float) -> tuple[str, dict | None]:
-        """(note, headline): the stack's FID fit, or the kind's headline from the shots so far."""
+    def _prepare(self, record: ShotAcquired, plan: Any) -> None:
+        """The pipeline's per-shot steps, once per shot (as `precess run` does for its progress lines)."""
+        full_scale = self.context.full_scale_v
+        shot = fid_shot(plan, record, full_scale) if plan is not None else shot_from_record(record, full_scale)
+        try:
+            self.prepared.append(prepare_shot(shot, fid_options(record.channel_names, self.band_hz)))
+        except (PrecessError, ValueError, ArithmeticError):
+            return  # a shot the pipeline cannot use; the run's analysis will say so
+        self.prepared_channels = record.channel_names
+        del self.prepared[:-LIVE_FIT_MAX_SHOTS]
+
+    def _fit(self) -> tuple[str, dict | None]:
+        """(note, headline): the FID fit of the shots so far, or the kind's headline."""
         try:
             if self.kind != "fid":
                 result = analyse_run(self.timeline, self.spec, self.shots, self.context)
                 return "", result.get("headline")
-            if self.sum_v is not None:
-                self.fit = fit_window(self.sum_v / self.count, sample_rate_hz, self.offset_s, self.count,
-                                      self.band_hz)
-        except (ValueError, ArithmeticError, np.linalg.LinAlgError) as exc:
+            if self.prepared:
+                options = fid_options(self.prepared_channels, self.band_hz)
+                self.fit = summary_of(analyse_prepared(self.prepared, options), len(self.prepared))
+        except (PrecessError, ValueError, ArithmeticError, np.linalg.LinAlgError) as exc:
             self.fit = None
             return f"no fit yet: {exc}", None
         return "", None

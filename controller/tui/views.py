@@ -57,7 +57,7 @@ def history_specs(points: list[HistoryPoint]) -> tuple[PlotSpec, PlotSpec]:
         bars = Series(np.repeat(minutes, 2), np.column_stack([v - sd, v + sd]).ravel(), ERROR_BAR_STYLE, connect=False)
         lo, hi = float((v - sd).min()), float((v + sd).max())
         pad = max(hi - lo, abs(hi) * 1e-6, 1e-9) * 0.1
-        return PlotSpec(series=(bars, Series(minutes, v, ENVELOPE_STYLE)), x_unit="min", y_unit=unit,
+        return PlotSpec(series=(bars, Series(minutes, v, ENVELOPE_STYLE, connect=False)), x_unit="min", y_unit=unit,
                         x_range=x_range, y_range=(lo - pad, hi + pad), y_scale_unit=False)
 
     return (spec([p.field_nt for p in points], [p.field_sd_nt for p in points], "nT"),
