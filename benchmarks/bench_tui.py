@@ -16,6 +16,7 @@ import fcntl
 import os
 import pty
 import select
+import shutil
 import struct
 import sys
 import tempfile
@@ -25,6 +26,7 @@ from pathlib import Path
 
 ROOT = Path(__file__).resolve().parent.parent
 RIG = ROOT / "configs" / "rigs" / "demo-sim.toml"
+SEQUENCE = ROOT / "configs" / "sequences" / "fid-sudden.toml"
 SYNC_START, SYNC_QUERY, SYNC_REPLY = b"\x1b[?2026h", b"\x1b[?2026$p", b"\x1b[?2026;2$y"
 TARGET_FPS, TARGET_CORE_FRACTION = 10.0, 0.25
 TICKS_PER_S = os.sysconf("SC_CLK_TCK")
@@ -34,12 +36,16 @@ DOWN = b"\x1b[B"
 class Terminal:
     """The master side of a pty running the TUI."""
 
-    def __init__(self, pace: float, db: str) -> None:
+    def __init__(self, pace: float, folder: Path) -> None:
+        sequences = folder / "sequences"
+        sequences.mkdir()
+        shutil.copy(SEQUENCE, sequences)  # the plan screen then lists just this one
         self.pid, self.fd = pty.fork()
         if self.pid == 0:  # child: the TUI on the demo rig
             os.environ.update(TERM="xterm-256color", COLUMNS="80", LINES="24")
             os.execv(sys.executable, [sys.executable, "-m", "controller.cli.main", "tui", "--rig", str(RIG),
-                                      "--db", db, "--pace", str(pace)])
+                                      "--db", str(folder / "bench.sqlite"), "--state-dir", str(folder / "state"),
+                                      "--sequences", str(sequences), "--pace", str(pace)])
         fcntl.ioctl(self.fd, termios.TIOCSWINSZ, struct.pack("HHHH", 24, 80, 0, 0))
         self.frames = 0
         self.bytes = 0
@@ -110,11 +116,11 @@ class Terminal:
 
 def run(pace: float, seconds: float) -> None:
     with tempfile.TemporaryDirectory() as tmp:
-        term = Terminal(pace, str(Path(tmp) / "bench.sqlite"))
-        term.pump(3.0)  # start-up
+        term = Terminal(pace, Path(tmp))
+        term.pump(5.0)  # start-up
         idle = term.measure(seconds)
-        # plan: fid-sudden (second in the list), shots = 40, queue it, go, watch
-        term.keys(b"p", DOWN, b"\t", DOWN, DOWN, b"\r", b"\x15", b"40", b"\r", b"+", b"g", b"w")
+        # plan: fid-sudden, shots = 40, queue it, go, watch
+        term.keys(b"p", b"\t", DOWN, DOWN, b"\r", b"\x15", b"40", b"\r", b"+", b"g", b"w")
         term.pump(2.0)  # first shot under way
         streaming = term.measure(seconds)
         code = term.close()
