@@ -63,8 +63,6 @@ def _convert(value: Any, tp: Any, file: str, key: str) -> Any:
                 return _convert(value, arg, file, key)
             except ConfigError as exc:
                 errors.append(exc)
-        if len(errors) == 1:  # `X | None`: X's own message names the inner key
-            raise errors[0]
         raise ConfigError(file, key, f"{value!r} is not {_describe_type(tp)}")
     if dataclasses.is_dataclass(tp):
         if not isinstance(value, dict):
