@@ -204,6 +204,10 @@ class Store:
             raise StoreError(f"{self.path}: gap ends ({end_s}) before it starts ({start_s})")
         self._tx("INSERT INTO gaps VALUES (?,?,?,?)", (run_id, start_s, end_s, reason))
 
+    def record_maintenance(self, at_s: float, action: str, detail: dict[str, Any]) -> None:
+        """One row in the maintenance table (what a campaign or a compaction did, when)."""
+        self._tx("INSERT INTO maintenance VALUES (?,?,?)", (at_s, action, json.dumps(detail, sort_keys=True)))
+
     def _tx(self, sql: str, params: tuple) -> None:
         try:
             with self._transaction():

@@ -11,6 +11,8 @@
     timezone = "UTC"
     follow_larmor = true                        # pulses follow the last measured frequency
     on_failure = "stop"                         # or "continue" with the next slot
+    [campaign]                                  # only `precess campaign` reads it (optional;
+    disk_reserve_mb = 500.0                     #  see controller/config/campaign.py)
 
 A run starts on a slot: start + k every_s.  A slot outside every window, or already past
 when the previous run ends, is skipped.
@@ -24,6 +26,7 @@ from datetime import datetime, timezone
 from pathlib import Path
 from zoneinfo import ZoneInfo, ZoneInfoNotFoundError
 
+from controller.config.campaign import CampaignConfig
 from controller.config.loader import read_toml
 from controller.config.strict import build, field
 from controller.errors import ConfigError
@@ -44,6 +47,7 @@ class ScheduleConfig:
     follow_larmor: bool = field(True, help="pulses follow the last measured Larmor frequency")
     on_failure: str = field("stop", choices=("stop", "continue"))
     description: str = field("")
+    campaign: CampaignConfig = field(default_factory=CampaignConfig)
 
 
 @dataclass(frozen=True)

@@ -85,6 +85,8 @@ class ScheduleRunner:
         self.on_report: Callable[[RunReport], None] = lambda report: None
         self.on_wait: Callable[[float], None] = lambda slot_s: None
         self.on_skip: Callable[[float, str], None] = lambda slot_s, reason: None
+        # called at the slot, just before the run; raising ends run() (a campaign checks disk and devices here)
+        self.before_run: Callable[[float], None] = lambda slot_s: None
         self._stop = threading.Event()
         self._stop_reason = ""
 
@@ -136,6 +138,7 @@ class ScheduleRunner:
             self.engine.best_effort_sinks[:] = self.run_sinks(prepared)
             if self._stop.is_set():
                 return ScheduleOutcome(EXIT_STOPPED, self._stop_reason, s)
+            self.before_run(slot)
             try:
                 outcome = self.engine.run(prepared.timeline, snapshot)
             except CoilTooWarmError as exc:

@@ -29,7 +29,8 @@ class Faults:
     """Faults that tests can inject.
 
     The `*_at_s` faults are off while None and active from that clock time on (seconds since
-    the epoch, on the instrument's clock), so a test can place a fault mid-pulse.
+    the epoch, on the instrument's clock), so a test can place a fault mid-pulse.  A fault with
+    a `*_until_s` partner ends at that time (a device that drops out and comes back).
     """
 
     supply_dead: bool = False
@@ -40,6 +41,9 @@ class Faults:
     rising_resistance_at_s: float | None = None  # a failing joint: series resistance grows
     rising_resistance_ohm_per_s: float = 0.5
     board_silent_at_s: float | None = None  # the board stops answering (heartbeat lost)
+    board_silent_until_s: float | None = None  # ... and answers again from then on (unplugged, replugged)
+    supply_lost_at_s: float | None = None  # the supply vanishes: every command raises DriverError
+    supply_lost_until_s: float | None = None  # ... until it comes back
     battery_sag_at_s: float | None = None  # the battery voltage falls
     battery_sag_v_per_s: float = 0.5
     overshoot_at_s: float | None = None  # the supply delivers more than its setpoint
@@ -51,7 +55,8 @@ class Faults:
 
     def active(self, name: str, now_s: float) -> bool:
         onset = getattr(self, f"{name}_at_s")
-        return onset is not None and now_s >= onset
+        until = getattr(self, f"{name}_until_s", None)
+        return onset is not None and now_s >= onset and (until is None or now_s < until)
 
     def since_s(self, name: str, now_s: float) -> float:
         """Seconds the fault has been active (0 when it is not)."""

@@ -3,7 +3,9 @@
 Faults (drivers.simulated.instrument.Faults) change what it does and reads back: an open
 coil reads no current at the voltage limit, a short reads the set current at almost no
 voltage, a stuck supply ignores setpoints and output_off, an overshoot delivers more than
-asked, a failing joint or a hot coil can push it to its voltage limit (compliance).
+asked, a failing joint or a hot coil can push it to its voltage limit (compliance).  A lost
+supply (unplugged, powered down) raises DriverError on every call, output_off included: the
+host can no longer command it (on a real rig the board's relay keeps the coil dead).
 """
 
 from __future__ import annotations
@@ -26,7 +28,12 @@ class SimulatedSupply:
     def _stuck(self) -> bool:
         return self.inst.faults.active("stuck_supply", self.inst.clock.now())
 
+    def _answer(self) -> None:
+        if self.inst.faults.active("supply_lost", self.inst.clock.now()):
+            raise DriverError("simulated supply: no reply, the device is gone (injected fault)")
+
     def set_current(self, current_a: float) -> None:
+        self._answer()
         if self.inst.faults.supply_dead:
             raise DriverError("simulated supply: no reply (injected fault)")
         if not self._stuck():
@@ -50,14 +57,17 @@ class SimulatedSupply:
         return 0.0, inst.compliance_v  # no load: the output sits at its voltage limit
 
     def read_current(self) -> float:
+        self._answer()
         return self._noisy(self._readback()[0])
 
     def read_voltage(self) -> float:
         """V = I R(T) while the coil carries current (the resistance method reads coil temperature from it)."""
+        self._answer()
         return self._noisy(self._readback()[1])
 
     def output_off(self) -> None:
-        """Idempotent; never raises for 'already off'.  A stuck supply silently stays on."""
+        """Idempotent; never raises for 'already off'.  A stuck supply silently stays on; a lost one raises."""
+        self._answer()
         if self._stuck():
             return
         self.inst.supply_live = False

@@ -1,0 +1,1 @@
+"""Unattended campaigns: a schedule run for days that resumes after kills and device drop-outs."""
