@@ -33,6 +33,7 @@ from typing import Any, Callable
 from controller.campaign import guards
 from controller.campaign.heartbeat import Beat, Heartbeat, TickingClock, heartbeat_path, read_beat, utc_text
 from controller.campaign.resume import CampaignKey, record_event, recover, restored_state, runs_without_result
+from controller.cli.common import config_snapshot
 from controller.cli.supervision import supervised_engine
 from controller.clock import Clock
 from controller.config.loader import LoadedRig
@@ -79,7 +80,7 @@ class CampaignService:
 
     def __init__(self, schedule: Schedule, loaded: LoadedRig, store: Store, clock: Clock,
                  rig_factory: Callable[[], Rig], latch: TripLatch,
-                 snapshot: Callable[[PreparedRun], dict[str, Any]] = lambda prepared: {},
+                 snapshot: Callable[[PreparedRun], dict[str, Any]] | None = None,
                  wall: Callable[[], float] = time.time) -> None:
         self.schedule = schedule
         self.loaded = loaded
@@ -88,7 +89,8 @@ class CampaignService:
         self.key = CampaignKey(schedule.config.name, loaded.config.name)
         self.rig_factory = rig_factory
         self.latch = latch
-        self.snapshot = snapshot
+        # the runs' snapshot must name the rig: the campaign finds its runs by schedule and rig name
+        self.snapshot = snapshot or (lambda prepared: config_snapshot(loaded, prepared.spec, schedule.sequence_path))
         self.session = uuid.uuid4().hex[:12]
         self.heartbeat = Heartbeat(heartbeat_path(store.path), Beat(
             state="starting", time_s=clock.now(), written_wall_s=wall(), schedule=self.key.schedule, rig=self.key.rig,

@@ -28,7 +28,7 @@ from controller.campaign.heartbeat import heartbeat_path, read_beat
 from controller.campaign.resume import CampaignKey, last_sign_of_life_s, resume_clock_start_s
 from controller.campaign.service import CampaignService
 from controller.cli.cmd_runs import DEFAULT_DB
-from controller.cli.common import SIMULATED_NOTE, config_snapshot, existing_store, load_rig, open_rig, refused
+from controller.cli.common import SIMULATED_NOTE, existing_store, load_rig, open_rig, refused
 from controller.cli.supervision import add_state_dir_argument, latch_for
 from controller.clock import Clock, VirtualClock, WallClock
 from controller.config.schedule import load_schedule, parse_time_s
@@ -160,8 +160,7 @@ def run(args: argparse.Namespace) -> int:
         print(SIMULATED_NOTE + " (virtual time)" if simulated else
               "CAUTION: this campaign energises a real coil again and again for days with nobody at the rig; "
               "keep the coil area closed off; see safety.md.", flush=True)
-        service = CampaignService(schedule, loaded, store, clock, lambda: open_rig(loaded, clock), latch,
-                                  snapshot=lambda p: config_snapshot(loaded, p.spec, schedule.sequence_path))
+        service = CampaignService(schedule, loaded, store, clock, lambda: open_rig(loaded, clock), latch)
         with graceful_stop(service):
             outcome = service.run()
     print(f"campaign {cfg.name!r} {outcome.status}: {outcome.reason} ({outcome.runs_done} run(s) in all, "
