@@ -1,9 +1,10 @@
 """The campaign's heartbeat: what it is doing now, for a person or a monitor to read.
 
 A small JSON file beside the store (`<store>.heartbeat.json`), rewritten atomically
-(temporary file, fsync, rename) on every state change, after every stored shot and at least
-every `heartbeat_every_s` of wall-clock time while it waits.  A reader never sees half a
-file.  `time_s` is the campaign's clock (virtual on a simulated rig); `written_wall_s` is
+(temporary file, rename) on every state change, after every stored shot and at least every
+`heartbeat_every_s` of wall-clock time while it waits.  A reader never sees half a file.  It
+is not fsynced (that would double the disk flushes per shot): after a power cut the store is
+the record, and a heartbeat the cut damaged is ignored when the campaign resumes.  `time_s` is the campaign's clock (virtual on a simulated rig); `written_wall_s` is
 the machine's clock when it was written, so a monitor judges staleness from that:
 
     {"state": "running", "time_s": ..., "written_wall_s": ..., "schedule": ..., "rig": ...,
@@ -87,10 +88,7 @@ class Beat:
 def write_beat(path: Path, beat: Beat) -> None:
     """Write atomically: a reader sees the old beat or the new one, never a mix.  Raises OSError."""
     tmp = path.with_name(path.name + f".{beat.pid}.tmp")
-    with open(tmp, "w", encoding="utf-8") as f:
-        f.write(json.dumps(asdict(beat), sort_keys=True, default=str))
-        f.flush()
-        os.fsync(f.fileno())
+    tmp.write_text(json.dumps(asdict(beat), sort_keys=True, default=str), encoding="utf-8")
     os.replace(tmp, path)
 
 
