@@ -217,14 +217,7 @@ class CampaignService:
                 if self._await_ack(result.reason):
                     continue
                 return self._gave_up(EXIT_INTERLOCK, result.reason)
-            if result.status == EXIT_FAILED:
-                cause = self._device_failure()
-                if cause is None:
-                    return self._ended(EXIT_FAILED, result.reason)
-                if not self._await_devices(f"{result.reason} ({cause})"):
-                    return self._gave_up("device-lost", self._device_reason)
-                continue
-            return self._ended(result.status, result.reason)
+            return self._ended(result.status, result.reason)  # completed, refused, failed (not a device)
 
     def _engine(self) -> Engine:
         assert self.rig is not None
@@ -305,6 +298,10 @@ class CampaignService:
         assert self.runner is not None
         self._beat(runs_done=self.runner.state.runs_done)
         self.on_report(report)
+        if report.exit_status == EXIT_FAILED:  # a device that stopped answering: wait for it now
+            cause = self._device_failure()
+            if cause is not None:
+                raise DeviceLost(f"run {report.run_id}: {report.reason} ({cause})")
 
     # ---- waiting for devices and operators --------------------------------------------------
     def _device_failure(self) -> str | None:

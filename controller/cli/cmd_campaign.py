@@ -32,7 +32,7 @@ from controller.cli.common import SIMULATED_NOTE, existing_store, load_rig, open
 from controller.cli.supervision import add_state_dir_argument, latch_for
 from controller.clock import Clock, VirtualClock, WallClock
 from controller.config.schedule import load_schedule, parse_time_s
-from controller.errors import InputError
+from controller.errors import InputError, StoreError
 from controller.runner import prepare_run
 from controller.store import Store
 
@@ -153,16 +153,23 @@ def run(args: argparse.Namespace) -> int:
     if refused(prepared.timeline, loaded.config):
         return EXIT_VIOLATIONS
     cfg = schedule.config
-    with store_lock(args.db), Store(args.db) as store, \
-            campaign_logging(args.db, cfg.campaign.log_max_kb, cfg.campaign.log_backups, args.quiet):
-        simulated = loaded.config.simulator is not None
-        clock = campaign_clock(args, simulated, store, CampaignKey(cfg.name, loaded.config.name))
-        print(SIMULATED_NOTE + " (virtual time)" if simulated else
-              "CAUTION: this campaign energises a real coil again and again for days with nobody at the rig; "
-              "keep the coil area closed off; see safety.md.", flush=True)
-        service = CampaignService(schedule, loaded, store, clock, lambda: open_rig(loaded, clock), latch)
-        with graceful_stop(service):
-            outcome = service.run()
+    with store_lock(args.db), campaign_logging(args.db, cfg.campaign.log_max_kb, cfg.campaign.log_backups,
+                                               args.quiet):
+        store = Store(args.db)
+        try:
+            simulated = loaded.config.simulator is not None
+            clock = campaign_clock(args, simulated, store, CampaignKey(cfg.name, loaded.config.name))
+            print(SIMULATED_NOTE + " (virtual time)" if simulated else
+                  "CAUTION: this campaign energises a real coil again and again for days with nobody at the rig; "
+                  "keep the coil area closed off; see safety.md.", flush=True)
+            service = CampaignService(schedule, loaded, store, clock, lambda: open_rig(loaded, clock), latch)
+            with graceful_stop(service):
+                outcome = service.run()
+        finally:
+            try:
+                store.close()
+            except StoreError as exc:  # e.g. a full disk: the outcome below says what happened
+                logging.getLogger("precess.campaign").error("closing the store: %s", exc)
     print(f"campaign {cfg.name!r} {outcome.status}: {outcome.reason} ({outcome.runs_done} run(s) in all, "
           f"{outcome.shots_this_session} shot(s) in this session); the rig was left safe", flush=True)
     return outcome.exit_code
