@@ -66,7 +66,7 @@ def _utc(t: float) -> str:
 CAMPAIGN_RUNS_SQL = (
     "SELECT run_id, started_at_s, finished_at_s, exit_status, json_extract(config_json, '$.schedule.occurrence'), "
     "json_extract(config_json, '$.schedule.slot_s') FROM runs r "
-    "WHERE json_extract(config_json, '$.schedule.name') = ? AND json_extract(config_json, '$.rig.name') = ?")
+    "WHERE json_extract(config_json, '$.schedule.name') = ?1 AND json_extract(config_json, '$.rig.name') = ?2")
 
 
 def campaign_runs(store: Store, key: CampaignKey, extra_condition: str = "") -> list[CampaignRun]:
@@ -109,15 +109,15 @@ def campaign_events(store: Store, key: CampaignKey) -> list[tuple[float, dict[st
 
 def last_sign_of_life_s(store: Store, key: CampaignKey, beat: Beat | None) -> float | None:
     """The latest moment the campaign is known to have been running (see the module docstring)."""
-    run_ids = [r.run_id for r in campaign_runs(store, key)]
     times: list[float] = []
-    if run_ids:
-        marks = ",".join("?" * len(run_ids))
-        shot_end, run_end, run_start = store.db.execute(
-            f"SELECT (SELECT MAX(started_at_s + n_samples / sample_rate_hz) FROM shots WHERE run_id IN ({marks})), "
-            f"(SELECT MAX(finished_at_s) FROM runs WHERE run_id IN ({marks})), "
-            f"(SELECT MAX(started_at_s) FROM runs WHERE run_id IN ({marks}))", run_ids * 3).fetchone()
-        times += [t for t in (shot_end, run_end, run_start) if t is not None]
+    latest = campaign_runs(store, key, "AND r.started_at_s = (SELECT MAX(started_at_s) FROM runs q WHERE "
+                                       "json_extract(q.config_json, '$.schedule.name') = ?1 AND "
+                                       "json_extract(q.config_json, '$.rig.name') = ?2)")
+    if latest:  # runs follow one another: the latest holds the latest shot and end
+        run = latest[-1]
+        shot_end = store.db.execute("SELECT MAX(started_at_s + n_samples / sample_rate_hz) FROM shots "
+                                    "WHERE run_id = ?", (run.run_id,)).fetchone()[0]
+        times += [t for t in (shot_end, run.finished_at_s, run.started_at_s) if t is not None]
     events = campaign_events(store, key)
     if events:
         times.append(events[-1][0])
