@@ -83,6 +83,6 @@ def test_serial_board_unplugged_between_runs_and_replugged(tmp_path, board_emula
         "SELECT detail_json FROM maintenance WHERE action = 'campaign' ORDER BY rowid")]
     assert events == ["start", "device_lost", "device_back", "end"]
     con.close()
-    # the first open, attempts every 0.5 s that failed while it was unplugged, the one that worked
-    assert len(attempts) >= 4 and all(b - a >= 0.45 for a, b in zip(attempts[1:], attempts[2:]))
+    # the first open, at least one attempt that failed while it was unplugged (every 0.5 s), the one that worked
+    assert len(attempts) >= 3 and all(b - a >= 0.45 for a, b in zip(attempts[1:], attempts[2:]))
     assert board_emulator.path == "idle"
