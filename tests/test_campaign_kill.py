@@ -81,6 +81,7 @@ def test_campaign_killed_at_random_moments_resumes_without_loss_or_duplicates(tm
     final = subprocess.run(argv, cwd=tmp_path, env=env, capture_output=True, text=True, timeout=120)
     assert final.returncode == 0, final.stderr
     assert f"all {RUNS} run(s) done" in final.stdout
+    assert not list(tmp_path.glob("*.tmp"))  # half-written heartbeats of killed processes are cleared
 
     # the database is intact: SQLite's own check and every shot's SHA-256
     report = check_store(db)

@@ -92,6 +92,15 @@ def write_beat(path: Path, beat: Beat) -> None:
     os.replace(tmp, path)
 
 
+def remove_stale_temporaries(path: Path) -> None:
+    """Delete half-written heartbeats a killed process left beside path (`<name>.<pid>.tmp`)."""
+    for stale in path.parent.glob(path.name + ".*.tmp"):
+        try:
+            stale.unlink()
+        except OSError:
+            pass
+
+
 def read_beat(path: Path, strict: bool = True) -> Beat | None:
     """The last heartbeat written at path, or None if there is none.
 

@@ -31,7 +31,9 @@ from dataclasses import dataclass
 from typing import Any, Callable
 
 from controller.campaign import guards
-from controller.campaign.heartbeat import Beat, Heartbeat, TickingClock, heartbeat_path, read_beat, utc_text
+from controller.campaign.heartbeat import (
+    Beat, Heartbeat, TickingClock, heartbeat_path, read_beat, remove_stale_temporaries, utc_text,
+)
 from controller.campaign.resume import CampaignKey, record_event, recover, restored_state, runs_without_result
 from controller.cli.common import config_snapshot
 from controller.cli.supervision import supervised_engine
@@ -159,6 +161,7 @@ class CampaignService:
 
     def _recover(self) -> Any:
         beat = read_beat(self.heartbeat.path, strict=False)
+        remove_stale_temporaries(self.heartbeat.path)
         now = self.clock.now()
         recovery = recover(self.store, self.key, now, beat)
         for run_id in recovery.closed_runs:
@@ -178,9 +181,9 @@ class CampaignService:
                                    larmor_hz=stored.get("larmor_hz"), larmor_source=stored.get("larmor_source", ""))
             result = finish_run(prepared, self.loaded, self.store, run_id, self.clock.now())
             log.info("run %s analysed on resume: %s", run_id, result.get("headline", {}).get("text", "no result"))
+        except StoreError:
+            raise
         except (PrecessError, ValueError, ArithmeticError) as exc:
-            if isinstance(exc, StoreError):
-                raise
             log.warning("run %s could not be analysed on resume: %s", run_id, exc)
 
     def _session(self, state: Any) -> CampaignOutcome:
