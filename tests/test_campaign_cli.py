@@ -96,3 +96,17 @@ def test_sigterm_stops_the_campaign_cleanly(tmp_path):
     last = json.loads(con.execute("SELECT detail_json FROM maintenance ORDER BY rowid DESC LIMIT 1").fetchone()[0])
     assert last["event"] == "end" and last["status"] == "stopped"
     con.close()
+
+
+def test_the_demo_night_campaign_is_one_reading_a_minute_from_dusk_to_dawn():
+    from datetime import datetime, timezone
+
+    from controller.config.schedule import load_schedule
+    from controller.schedule.plan import upcoming_slots
+
+    schedule = load_schedule(ROOT / "configs" / "schedules" / "kestrel-flats-night-campaign.toml")
+    start = datetime(2026, 6, 21, 17, 55, tzinfo=timezone.utc).timestamp()
+    slots = upcoming_slots(schedule, start, 1000)
+    assert len(slots) == 720 and schedule.config.campaign.disk_reserve_mb >= 200.0
+    first, last = (datetime.fromtimestamp(t, timezone.utc).strftime("%d %H:%M") for t in (slots[0], slots[-1]))
+    assert (first, last) == ("21 18:00", "22 05:59")
