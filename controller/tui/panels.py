@@ -1,7 +1,7 @@
 """Text of the TUI's panels, as pure functions of the LiveState (no Textual here).
 
 Every state that matters is spelled out in words (RUN, IDLE, TRIPPED, LATE...) and, where it
-calls for attention, also set in reverse video, so nothing depends on colour.
+calls for attention, also set in inverted text, so nothing depends on colour.
 """
 
 from __future__ import annotations
