@@ -102,7 +102,12 @@ class ScpiSupply:
         return self.session.query_number(self.commands.measure_voltage, -high, high, "V")
 
     def output_off(self) -> None:
-        """Current to zero and output off; both are attempted; idempotent.  Raises only if neither got through."""
+        """Current to zero and output off; both are attempted; idempotent.
+
+        Then the output state is read back (`output_query`, "0" or "OFF" expected) so a supply
+        that ignored the command is reported, not assumed off.  Raises only if neither command
+        got through or the supply says its output is still on.
+        """
         failures = []
         for command in (self.commands.set_current.format(value=0.0), self.commands.output_off):
             try:
@@ -114,3 +119,16 @@ class ScpiSupply:
             raise DriverError(failures[-1])
         self._output_on = False
         self._highest_setpoint_a = 0.0
+        self._confirm_output_off()
+
+    def _confirm_output_off(self) -> None:
+        query = self.commands.output_query
+        if not query:
+            return
+        try:
+            reply = self.session.query(query).upper()
+        except DriverError as exc:
+            raise DriverError(f"SCPI supply: output off sent but not confirmed ({exc}); check the supply by hand") from None
+        if reply not in ("0", "OFF"):
+            raise DriverError(f"SCPI supply at {self.cfg.resource}: output still on after {self.commands.output_off!r} "
+                              f"({query!r} replied {reply[:20]!r}); switch it off by hand")

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import dataclasses
 import math
 import time
 
@@ -127,7 +128,11 @@ def test_bad_readback_is_a_clear_error_and_the_output_can_still_be_switched_off(
     instrument.fault = fault
     with pytest.raises(DriverError, match=message):
         supply.read_current()
-    supply.output_off()
+    if fault == "overrange":
+        supply.output_off()
+    else:  # the commands get through, but a supply that cannot answer cannot confirm it is off
+        with pytest.raises(DriverError, match="output off sent but not confirmed"):
+            supply.output_off()
     assert settled(lambda: not instrument.output_on)
 
 
@@ -155,3 +160,20 @@ def test_instrument_errors_are_reported(emulator):
     instrument, server = emulator
     with pytest.raises(DriverError, match=r'instrument error after .*-222,"Data out of range"'):
         make(server, compliance_v=80.0).open()  # above the emulated supply's 60 V
+
+
+def test_output_off_is_confirmed_by_reading_the_output_state(emulator):
+    """A supply that ignores the off command is reported, not assumed off (common practice, no source)."""
+    instrument, server = emulator
+    supply = make(server).open()
+    supply.set_current(1.0)
+    supply.output_off()
+    assert "OUTP?" in instrument.log and not instrument.output_on
+    # a command map whose "off" word this supply does not know: the write goes unanswered
+    deaf = ScpiSupply(dataclasses.replace(supply.cfg, commands=ScpiSupplyCommands(output_off="OUTP:STATE OFF")),
+                      LimitsConfig(max_current_a=3.0), session=supply.session)
+    instrument.execute("OUTP ON")
+    with pytest.raises(DriverError, match="output still on"):
+        deaf.output_off()
+    instrument.execute("OUTP OFF")
+    supply.close()

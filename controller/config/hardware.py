@@ -63,6 +63,7 @@ class ScpiSupplyCommands:
     set_current: str = field("SOUR:CURR {value:.4f}")
     output_on: str = field("OUTP ON")
     output_off: str = field("OUTP OFF")
+    output_query: str = field("OUTP?", help="asked after output off to confirm it; empty = not confirmed")
     measure_current: str = field("MEAS:CURR?")
     measure_voltage: str = field("MEAS:VOLT?")
 
