@@ -10,7 +10,7 @@ applied to a record that is usable only in parts (the receiver windows between p
    usable samples alone (`mains.fit_harmonics_on_samples`), which the gaps do not bias;
    h(t) = sum_m Re(c_m exp(i 2 pi m f0 t)) (Butler & Russell, Geophysics 58:898 (1993))
    is subtracted from the signal and, with its own c_m, from every reference;
-3. what the references still explain in the band, removed block by block by the
+3. what the references still explain in the band, removed block by block (200 Hz blocks) by the
    multichannel Wiener filter (`reference.cancel_references`; Walsh, J. Appl. Geophys. 2008).
 
 Samples outside the usable stretches are returned unchanged; the input is never modified.
@@ -32,6 +32,10 @@ from controller.analysis.spectrum import band_bins
 from controller.sequences.timeline import Acquire, ShotPlan, Timeline
 
 BAND_MARGIN_HZ = 50.0  # harmonics this far outside the band are modelled too (their leakage)
+# The canceller's transfer functions are held constant over 200 Hz (not the line search's 20 Hz): with
+# B bins per block it also removes about 1/B of the signal's own power by chance, and here the signal
+# is measured from what is left, not fitted jointly with the references as in linefit.  Common practice, no source.
+REFERENCE_BLOCK_HZ = 200.0
 
 
 @dataclass(frozen=True)
@@ -87,7 +91,8 @@ def clean_record(signal: np.ndarray, references: list[np.ndarray], usable: np.nd
     if refs:
         spectrum = rfft(np.where(usable, x, 0.0))
         bins = band_bins(n, fs, band_hz)
-        spectrum[bins] = cancel_references(spectrum, [rfft(np.where(usable, r, 0.0)) for r in refs], bins, fs / n)
+        spectrum[bins] = cancel_references(spectrum, [rfft(np.where(usable, r, 0.0)) for r in refs], bins, fs / n,
+                                         REFERENCE_BLOCK_HZ)
         x = np.where(usable, irfft(spectrum, n), x)
     return CleanedRecord(np.where(usable, x, signal), replaced, None if fit is None else fit.fundamental_hz)
 
