@@ -86,12 +86,37 @@ def test_stored_run_through_analyze(tmp_path, capsys):
     assert "nT" in capsys.readouterr().out
 
 
-def test_a_noise_run_is_not_analysed_as_an_fid(tmp_path, capsys):
-    db = tmp_path / "noise.sqlite"
+def test_stored_cpmg_and_noise_runs_get_their_own_analysis(tmp_path, capsys):
+    # source: Meiboom & Gill, Rev. Sci. Instrum. 29:688 (1958): the CPMG train decays as exp(-t/T2)
+    db = tmp_path / "seq.sqlite"
+    cpmg = ROOT / "configs" / "sequences" / "cpmg-t2.toml"
+    assert main(["run", str(cpmg), "--rig", str(RIG), "--db", str(db), "--shots", "2", "--json"]) == 0
+    stored = json.loads(capsys.readouterr().out)
+    assert main(["analyze", "--db", str(db), "--run", stored["run_id"], "--json"]) == 0
+    result = json.loads(capsys.readouterr().out)
+    assert result["kind"] == "cpmg" and result["run_id"] == stored["run_id"]
+    assert result["larmor_source"] == stored_larmor_source(db, stored["run_id"])
+    assert result["t2_s"] == pytest.approx(stored["t2_s"], rel=1e-9)  # the timeline rebuilt as it ran
+    assert abs(result["t2_s"] - 1.6) < 0.05 * 1.6  # configs/samples/tap-water-half-litre.toml: t2_s = 1.6
+    assert main(["analyze", "--db", str(db), "--run", "latest"]) == 0
+    assert "T2 = " in capsys.readouterr().out
+    assert "--plot" in _one_line_error(capsys, ["analyze", "--db", str(db), "--run", "latest", "--plot", "x.png"])
+
     noise = ROOT / "configs" / "sequences" / "noise-survey.toml"
     assert main(["run", str(noise), "--rig", str(RIG), "--db", str(db), "--shots", "1"]) == 0
     capsys.readouterr()
-    assert "is a noise run" in _one_line_error(capsys, ["analyze", "--db", str(db), "--run", "latest"])
+    assert main(["analyze", "--db", str(db), "--run", "latest", "--json"]) == 0
+    result = json.loads(capsys.readouterr().out)
+    assert result["kind"] == "noise" and result["headline"]["unit"] == "nV/sqrt(Hz)"
+    # the simulated preamp's white noise, configs/rigs/demo-sim.toml (2 nV/rtHz), is the floor of the density
+    assert result["density_nv_per_rthz"] > 2.0
+
+
+def stored_larmor_source(db, run_id):
+    from controller.store import Store
+
+    with Store(db) as store:
+        return store.run(run_id)["config"]["larmor_source"]
 
 
 def test_noise_only_recording_reports_no_detection(tmp_path, capsys):

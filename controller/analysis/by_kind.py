@@ -21,6 +21,7 @@ from typing import Any, Callable
 import numpy as np
 
 from controller.analysis import noise as noise_analysis
+from controller.analysis.cleaning import cleaned_shots
 from controller.analysis.demodulate import principal_axis_projection
 from controller.analysis.echoes import echo_table
 from controller.analysis.fid_entry import analyse_fid_shots, fid_shot
@@ -40,6 +41,14 @@ class AnalysisContext:
     highpass_hz: float = 0.0
     mains_hz: float = 50.0
     full_scale_v: float | None = None  # the converter's full scale (overload blanking)
+    clean: bool = True  # hum, spikes and reference pickup removed before amplitudes (cleaning module)
+
+
+def prepared_shots(timeline: Timeline, shots: list[ShotLike], ctx: AnalysisContext) -> list[ShotLike]:
+    """The good shots, cleaned like the FID pipeline cleans its records (cleaning.cleaned_shots) unless ctx.clean is off."""
+    if not ctx.clean:
+        return shots
+    return cleaned_shots(timeline, shots, fid_band(timeline), ctx.mains_hz)
 
 
 def fid_band(timeline: Timeline) -> tuple[float, float]:
@@ -83,7 +92,7 @@ def fid_headline(r: dict[str, Any]) -> dict[str, Any]:
 
 
 def analyse_echo(timeline: Timeline, spec: Any, shots: list[ShotLike], ctx: AnalysisContext) -> dict[str, Any]:
-    table = echo_table(timeline, shots, spec.echo_window_s)
+    table = echo_table(timeline, prepared_shots(timeline, shots, ctx), spec.echo_window_s)
     signed, axis = principal_axis_projection(table.amplitudes[:, 0])
     r: dict[str, Any] = {"echo_times_s": table.values.tolist(), "echo_amplitudes_v": signed.tolist(),
                          "shots_per_point": table.shots.tolist(), "transmit_frequency_hz": table.frequency_hz,
@@ -106,7 +115,7 @@ def analyse_echo(timeline: Timeline, spec: Any, shots: list[ShotLike], ctx: Anal
 
 
 def analyse_cpmg(timeline: Timeline, spec: Any, shots: list[ShotLike], ctx: AnalysisContext) -> dict[str, Any]:
-    table = echo_table(timeline, shots, spec.echo_window_s)
+    table = echo_table(timeline, prepared_shots(timeline, shots, ctx), spec.echo_window_s)
     signed, axis = principal_axis_projection(table.amplitudes[0])
     values = signed if spec.variant == "cpmg" else np.abs(signed)
     fit = fit_exponential(table.echo_times_s[0], values)
@@ -120,8 +129,8 @@ def analyse_cpmg(timeline: Timeline, spec: Any, shots: list[ShotLike], ctx: Anal
     return r
 
 
-def _series(timeline: Timeline, shots: list[ShotLike]) -> tuple[Any, np.ndarray, dict[str, Any]]:
-    amps = series_amplitudes(timeline, shots, fid_band(timeline))
+def _series(timeline: Timeline, shots: list[ShotLike], ctx: AnalysisContext) -> tuple[Any, np.ndarray, dict[str, Any]]:
+    amps = series_amplitudes(timeline, prepared_shots(timeline, shots, ctx), fid_band(timeline))
     signed, axis = principal_axis_projection(amps.amplitudes)
     details = {"series": timeline.series_name, "series_unit": timeline.series_unit, "values": amps.values.tolist(),
                "amplitudes_v": signed.tolist(), "amplitude_sd_v": amps.amplitude_sd.tolist(),
@@ -130,9 +139,9 @@ def _series(timeline: Timeline, shots: list[ShotLike]) -> tuple[Any, np.ndarray,
     return amps, signed, details
 
 
-def _t1(timeline: Timeline, shots: list[ShotLike], where: str, unit_name: str) -> dict[str, Any]:
+def _t1(timeline: Timeline, shots: list[ShotLike], ctx: AnalysisContext, where: str, unit_name: str) -> dict[str, Any]:
     """T1 from y = c + a exp(-x/T1) over the series (relaxation.fit_exponential with an offset)."""
-    amps, signed, r = _series(timeline, shots)
+    amps, signed, r = _series(timeline, shots, ctx)
     fit = fit_exponential(amps.values, signed, offset=True)
     r.update(fit.as_dict("t1"))
     r["headline"] = headline("T1", fit.time_constant_s, fit.time_constant_sd_s, "s",
@@ -142,15 +151,15 @@ def _t1(timeline: Timeline, shots: list[ShotLike], where: str, unit_name: str) -
 
 
 def analyse_t1_polarise(timeline: Timeline, spec: Any, shots: list[ShotLike], ctx: AnalysisContext) -> dict[str, Any]:
-    return _t1(timeline, shots, "at the polarising field", "polarising times")
+    return _t1(timeline, shots, ctx, "at the polarising field", "polarising times")
 
 
 def analyse_t1_earth(timeline: Timeline, spec: Any, shots: list[ShotLike], ctx: AnalysisContext) -> dict[str, Any]:
-    return _t1(timeline, shots, "in the Earth's field", "delays")
+    return _t1(timeline, shots, ctx, "in the Earth's field", "delays")
 
 
 def analyse_nutation(timeline: Timeline, spec: Any, shots: list[ShotLike], ctx: AnalysisContext) -> dict[str, Any]:
-    amps, signed, r = _series(timeline, shots)
+    amps, signed, r = _series(timeline, shots, ctx)
     fit = fit_nutation(amps.values, signed)
     pulse = next(p for plan in timeline.shots for p in plan.of_kind(Pulse))
     if timeline.series_unit == "s":

@@ -314,4 +314,43 @@ def comb_bins(mains: MainsFit, n_samples: int, sample_rate_hz: float) -> np.ndar
 
 __all__ = ["MainsFit", "hann_smoothed", "find_harmonic_peaks", "initial_fundamental_hz", "choose_mains",
            "fit_fundamental", "fit_amplitudes", "fit_mains", "mains_spectrum", "subtract_mains", "estimate_mains", "refit_mains",
-           "comb_bins", "NOMINALS_HZ"]
+           "comb_bins", "fit_harmonics_on_samples", "harmonics_waveform", "NOMINALS_HZ"]
+
+
+def fit_harmonics_on_samples(record: np.ndarray, usable: np.ndarray, sample_rate_hz: float, f0: float,
+                             harmonics: np.ndarray) -> np.ndarray:
+    """c_m of h(t) = sum_m Re(c_m exp(i 2 pi m f0 t)) + offset by least squares on the usable samples only.
+
+    For a record with gaps (pulses), where the DFT line shape of `fit_amplitudes` does not
+    hold: columns cos(2 pi m f0 t) and sin(2 pi m f0 t), t = k / fs, so c_m = a_m - i b_m.
+    """
+    harmonics = np.asarray(harmonics, dtype=int)
+    if harmonics.size == 0:
+        return np.zeros(0, dtype=complex)
+    k = np.flatnonzero(usable)
+    rotor = _rotors(k / sample_rate_hz, f0, harmonics)
+    columns = np.concatenate([rotor.real, rotor.imag, np.ones((k.size, 1))], axis=1)
+    # normal equations: the columns are far from collinear over a record of many periods
+    coef = np.linalg.solve(columns.T @ columns, columns.T @ np.asarray(record, dtype=float)[k])
+    m = harmonics.size
+    return coef[:m] - 1j * coef[m:2 * m]
+
+
+def harmonics_waveform(t_s: np.ndarray, f0: float, harmonics: np.ndarray, amplitudes: np.ndarray) -> np.ndarray:
+    """h(t) = sum_m Re(c_m exp(i 2 pi m f0 t)) at the times t_s."""
+    if np.asarray(harmonics).size == 0:
+        return np.zeros(np.asarray(t_s).size)
+    return np.real(_rotors(np.asarray(t_s, dtype=float), f0, harmonics) @ np.asarray(amplitudes))
+
+
+def _rotors(t_s: np.ndarray, f0: float, harmonics: np.ndarray) -> np.ndarray:
+    """exp(i 2 pi m f0 t) for every t (rows) and m (columns), by products of exp(i 2 pi f0 t) powers."""
+    harmonics = np.asarray(harmonics, dtype=int)
+    base = np.exp(2j * np.pi * f0 * t_s)
+    out = np.empty((t_s.size, harmonics.size), dtype=complex)
+    current, power = base ** harmonics[0], harmonics[0]
+    for j, m in enumerate(harmonics):
+        current = current * base ** (m - power) if m != power else current
+        power = m
+        out[:, j] = current
+    return out

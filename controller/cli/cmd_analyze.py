@@ -14,7 +14,7 @@ from controller.errors import InputError
 from controller.store import Store
 
 
-NOT_FID_KINDS = ("echo", "cpmg", "noise")
+PER_KIND_ANALYSIS = ("echo", "cpmg", "t1-polarise", "t1-earth", "nutation", "noise")
 
 
 def band(text: str) -> tuple[float, float]:
@@ -53,7 +53,8 @@ def gamma_choice(text: str) -> str | float:
 def register(sub: argparse._SubParsersAction) -> None:
     p = sub.add_parser("analyze", help="frequency, field, T2* and SNR of a WAV recording or a stored run",
                        description="Analyse an FID: blanking, despiking, mains-hum model, reference cancellation, "
-                                   "joint fit, detection.  Give a WAV file, or --db and --run.")
+                                   "joint fit, detection.  Give a WAV file, or --db and --run.  Stored echo, CPMG, "
+                                   "T1, nutation and noise runs get their own kind's analysis (--json for every field).")
     p.add_argument("path", nargs="?", help="WAV file (PCM 8/16/24/32-bit or float, any channels)")
     p.add_argument("--db", help=f"store file for --run (default {DEFAULT_DB})")
     p.add_argument("--run", help="run id in the store, or 'latest'")
@@ -72,31 +73,29 @@ def register(sub: argparse._SubParsersAction) -> None:
     p.set_defaults(handler=run)
 
 
-def _load(args: argparse.Namespace) -> tuple[list[ShotData], str, str]:
-    """(shots, title, units)."""
-    if args.path and (args.db or args.run):
-        raise InputError("give either a WAV file or --db/--run, not both")
-    if args.path:
-        return [shot_from_wav(args.path)], args.path, "full scale"
-    if not args.run:
-        raise InputError("nothing to analyse: give a WAV file, or --run ID (with --db PATH)")
+def _stored_run(args: argparse.Namespace) -> tuple[str, str, str]:
+    """(store path, run id, sequence kind) of --db/--run ('latest' resolved)."""
+    from pathlib import Path
+
     db = args.db or DEFAULT_DB
     run_id = args.run
-    if run_id == "latest":
-        from pathlib import Path
-
-        if not Path(db).exists():
-            raise InputError(f"{db}: no such store (give --db PATH of an existing .sqlite file)")
-        with Store(db) as store:
+    if not Path(db).exists():
+        raise InputError(f"{db}: no such store (give --db PATH of an existing .sqlite file)")
+    with Store(db) as store:
+        if run_id == "latest":
             runs = store.runs()
-        if not runs:
-            raise InputError(f"{db}: no runs stored")
-        run_id = runs[-1]["run_id"]
+            if not runs:
+                raise InputError(f"{db}: no runs stored")
+            run_id = runs[-1]["run_id"]
+        kind = store.run(run_id)["config"].get("sequence", {}).get("kind", "fid")
+    return db, run_id, kind
+
+
+def _load(args: argparse.Namespace, db: str, run_id: str) -> tuple[list[ShotData], str, str]:
+    """(shots, title, units) of the WAV file, else of the stored FID run."""
+    if args.path:
+        return [shot_from_wav(args.path)], args.path, "full scale"
     shots, run = shots_from_store(db, run_id)
-    kind = run["config"].get("sequence", {}).get("kind", "fid")
-    if kind in NOT_FID_KINDS:
-        raise InputError(f"run {run_id} is a {kind} run: analyze fits FIDs (fid, t1 and nutation runs); "
-                         f"its own result is in `precess runs --db {db} --json`")
     return shots, f"run {run_id} ({run['sequence_name']})", "V"
 
 
@@ -133,8 +132,30 @@ def summary_lines(result: dict[str, Any]) -> list[str]:
     return lines
 
 
+def run_per_kind(args: argparse.Namespace, db: str, run_id: str) -> int:
+    """An echo, CPMG, T1, nutation or noise run: its own kind's analysis (analysis.stored_runs)."""
+    from controller.analysis.stored_runs import analyse_stored_run
+
+    if args.plot:
+        raise InputError(f"run {run_id}: --plot draws FID analyses only; leave it out for this run's kind")
+    result = analyse_stored_run(db, run_id)
+    if args.json:
+        print(to_json(result))
+    else:
+        print(f"run {run_id} ({result['sequence_name']}, {result['kind']})")
+        print("  " + result["headline"]["text"])
+    return 0
+
+
 def run(args: argparse.Namespace) -> int:
-    shots, title, units = _load(args)
+    if args.path and (args.db or args.run):
+        raise InputError("give either a WAV file or --db/--run, not both")
+    if not args.path and not args.run:
+        raise InputError("nothing to analyse: give a WAV file, or --run ID (with --db PATH)")
+    db, run_id, kind = _stored_run(args) if not args.path else ("", "", "fid")
+    if kind in PER_KIND_ANALYSIS:
+        return run_per_kind(args, db, run_id)
+    shots, title, units = _load(args, db, run_id)
     options = options_for(shots[0], args)
     result = analyse_shots(shots, options, display=bool(args.plot))
     if args.plot:

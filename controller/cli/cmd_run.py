@@ -66,7 +66,9 @@ def run(args: argparse.Namespace) -> int:
         engine = supervised_engine(loaded, rig, clock, store, latch)
         engine.best_effort_sinks.append(Progress(out, prepared.timeline, prepared.spec,
                                                  full_scale_v=loaded.config.receive.adc_full_scale_v))
-        outcome = engine.run(prepared.timeline, config_snapshot(loaded, prepared.spec, args.sequence))
+        snapshot = {**config_snapshot(loaded, prepared.spec, args.sequence),  # larmor: to recompile it later
+                    "larmor_hz": prepared.larmor_hz, "larmor_source": prepared.larmor_source}
+        outcome = engine.run(prepared.timeline, snapshot)
         rig.close()
         summary: dict[str, Any] = {"run_id": outcome.run_id, "exit_status": outcome.exit_status,
                                    "reason": outcome.reason, "db": str(Path(args.db))}
