@@ -105,7 +105,7 @@ def test_fid_runs_end_to_end_on_real_transports(tmp_path, frontend, board_emulat
     assert summary["shots"] == sum(1 for _, bad, _ in rows if not bad)
     assert config["drivers"]["transceiver"]["latency_calibration"]["latency_samples"] == JACK_PERIOD
     assert config["drivers"]["board"]["board_id"] == "HERON2-SB01"
-    assert "KPS-6005" in config["drivers"]["supply"]["identity"]
+    assert "KI-CS60" in config["drivers"]["supply"]["identity"]
 
 
 def send_raw(resource: str, message: str) -> str:

@@ -35,7 +35,7 @@ def settled(predicate, timeout_s=1.0):
 
 
 def make(server, limits=LimitsConfig(max_current_a=3.0), **overrides):
-    values = dict(resource=f"TCPIP0::127.0.0.1::{server.port}::SOCKET", identity_contains="KPS-6005",
+    values = dict(resource=f"TCPIP0::127.0.0.1::{server.port}::SOCKET", identity_contains="KI-CS60",
                   compliance_v=30.0, max_current_a=5.0, ramp_step_a=0.5, ramp_step_s=0.0, timeout_s=1.0)
     values.update(overrides)
     return ScpiSupply(ScpiSupplyConfig(**values), limits)

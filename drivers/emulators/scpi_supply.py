@@ -24,7 +24,7 @@ COPPER_ALPHA_PER_K = 0.00393
 class CoilSupply(Instrument):
     """State and physics; times from time.monotonic()."""
 
-    identity = "Kestrel Instruments,KPS-6005 (emulated),EMU0001,1.2"
+    identity = "Kestrel Instruments,KI-CS60 (emulated),EMU0001,1.2"
 
     def __init__(self, resistance_ohm: float = 4.4, inductance_h: float = 0.03, max_current_a: float = 5.0,
                  max_voltage_v: float = 60.0, ambient_c: float = 20.0, heat_capacity_j_per_k: float = 250.0,
