@@ -239,6 +239,15 @@ class Store:
                 "shots_completed", "exit_status", "reason", "simulated", "shots_stored")
         return [dict(zip(keys, row)) for row in cur.fetchall()]
 
+    def resolve_run_id(self, run_id: str) -> str:
+        """A run id as given, or the newest run's id for 'latest'."""
+        if run_id != "latest":
+            return run_id
+        row = self.db.execute("SELECT run_id FROM runs ORDER BY started_at_s DESC LIMIT 1").fetchone()
+        if row is None:
+            raise StoreError(f"{self.path}: no runs stored, so there is no 'latest'")
+        return row[0]
+
     def run(self, run_id: str) -> dict[str, Any]:
         row = self.db.execute("SELECT run_id, config_json, sample_rate_hz, sequence_name, exit_status FROM runs "
                               "WHERE run_id = ?", (run_id,)).fetchone()

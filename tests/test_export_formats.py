@@ -156,3 +156,14 @@ def test_bad_selections_are_one_line(two_run_template, tmp_path, capsys):
     assert main(["export", "--db", str(tmp_path / "none.sqlite"), "--format", "csv", "--out", "o"]) == 2
     assert "no such store" in capsys.readouterr().err
     assert EPOCH_NOON_UTC  # the template's runs start at noon on 2026-06-21
+
+
+def test_run_latest_selects_the_newest_run(two_run_template, tmp_path):
+    # common practice, no source: `--run latest` means the run started last
+    path, run_a, run_b = two_run_template
+    with Store(path) as store:
+        newest = max(store.runs(), key=lambda r: r["started_at_s"])["run_id"]
+    latest = ng.jcampdx.read(str(_export(path, "jcampdx", tmp_path / "l.jdx", "--run", "latest")))[0]
+    named = ng.jcampdx.read(str(_export(path, "jcampdx", tmp_path / "n.jdx", "--run", newest)))[0]
+    assert latest["TITLE"] == named["TITLE"]
+    assert newest in latest["TITLE"][0]

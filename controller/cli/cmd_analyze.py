@@ -82,11 +82,7 @@ def _stored_run(args: argparse.Namespace) -> tuple[str, str, str]:
     if not Path(db).exists():
         raise InputError(f"{db}: no such store (give --db PATH of an existing .sqlite file)")
     with Store(db) as store:
-        if run_id == "latest":
-            runs = store.runs()
-            if not runs:
-                raise InputError(f"{db}: no runs stored")
-            run_id = runs[-1]["run_id"]
+        run_id = store.resolve_run_id(run_id)
         kind = store.run(run_id)["config"].get("sequence", {}).get("kind", "fid")
     return db, run_id, kind
 

@@ -96,7 +96,7 @@ def run_measure(args: argparse.Namespace) -> int:
     from controller.remeasure import remeasure
 
     with open_existing_store(args.db) as store:
-        summary = remeasure(store, selection_from(args), args.group, time.time())
+        summary = remeasure(store, selection_from(args, store), args.group, time.time())
     for run_id, count, failed in summary:
         extra = f", {failed} group(s) could not be fitted" if failed else ""
         print(f"run {run_id}: {count} reading(s) of {args.group} shot(s){extra}")

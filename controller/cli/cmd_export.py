@@ -39,9 +39,9 @@ def register(sub: argparse._SubParsersAction) -> None:
 
 
 def run(args: argparse.Namespace) -> int:
-    sel = selection_from(args)
     site = dataclasses.asdict(load_site(args.site)) if args.site else None
     with open_existing_store(args.db) as store:
+        sel = selection_from(args, store)
         if args.format == "iaga2002":
             message = from_store.export_iaga2002(store, sel, args.out, args.interval_s, args.data_type, args.source,
                                                  args.max_sd_nt, site)

@@ -22,13 +22,13 @@ def run(args: argparse.Namespace) -> int:
     from controller.report.plots import plot_all
     from controller.report.summary import summary_lines
 
-    sel = selection_from(args)
     out = Path(args.out)
     try:
         out.mkdir(parents=True, exist_ok=True)
     except OSError as exc:
         raise InputError(f"{out}: cannot create the report folder ({exc.strerror})") from None
     with open_existing_store(args.db) as store:
+        sel = selection_from(args, store)
         data = gather(store, sel)
     if not data.runs:
         raise InputError(f"{args.db}: no runs in {sel.describe()}")

@@ -41,15 +41,17 @@ def add_db_argument(p: argparse.ArgumentParser) -> None:
 
 
 def add_selection_arguments(p: argparse.ArgumentParser) -> None:
-    p.add_argument("--run", dest="run_id", help="one run (its id, as `precess runs` lists it)")
+    p.add_argument("--run", dest="run_id", help="one run (its id, as `precess runs` lists it, or 'latest')")
     p.add_argument("--from", dest="from_s", type=parse_utc, help="start of a time range (UTC)")
     p.add_argument("--to", dest="to_s", type=parse_utc, help="end of a time range (UTC)")
 
 
-def selection_from(args: argparse.Namespace) -> Selection:
+def selection_from(args: argparse.Namespace, store: Store) -> Selection:
+    """The --run/--from/--to selection, with --run latest resolved in `store`."""
     if args.from_s is not None and args.to_s is not None and args.to_s <= args.from_s:
         raise InputError(f"--to ({args.to_s:.0f}) must come after --from ({args.from_s:.0f})")
-    return Selection(run_id=args.run_id, from_s=args.from_s, to_s=args.to_s)
+    run_id = store.resolve_run_id(args.run_id) if args.run_id is not None else None
+    return Selection(run_id=run_id, from_s=args.from_s, to_s=args.to_s)
 
 
 def open_existing_store(path: str) -> Store:
