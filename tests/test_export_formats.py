@@ -167,3 +167,14 @@ def test_run_latest_selects_the_newest_run(two_run_template, tmp_path):
     named = ng.jcampdx.read(str(_export(path, "jcampdx", tmp_path / "n.jdx", "--run", newest)))[0]
     assert latest["TITLE"] == named["TITLE"]
     assert newest in latest["TITLE"][0]
+
+
+def test_wav_of_one_shot_holds_exactly_that_shot(two_run_template, tmp_path):
+    # source: scipy.io.wavfile reads the file back independently
+    path, run_a, _ = two_run_template
+    out = _export(path, "wav", tmp_path / "one.wav", "--run", run_a, "--shot", "1")
+    rate, data = wavfile.read(out)
+    with Store(path) as store:
+        (shot,) = [s for s in store.shots(run_a) if s.shot_index == 1]
+        full_scale_v = store.run(run_a)["config"]["rig"]["receive"]["adc_full_scale_v"]
+    np.testing.assert_array_equal(data, (shot.samples.T / full_scale_v).astype(np.float32))

@@ -30,8 +30,8 @@ def register(sub: argparse._SubParsersAction) -> None:
     g.add_argument("--source", help="header 'Source of Data' (default: the rig's name)")
     g.add_argument("--max-sd-nt", type=float, help="treat readings with a larger field uncertainty as missing")
     g.add_argument("--site", help="site TOML for the header, if the runs' stored configuration has none")
-    j = p.add_argument_group("jcampdx")
-    j.add_argument("--shot", type=int, help="one shot instead of the stack of the run's good shots")
+    j = p.add_argument_group("jcampdx / wav")
+    j.add_argument("--shot", type=int, help="one shot (its index) instead of the stack (jcampdx) or all shots (wav)")
     w = p.add_argument_group("wav / npz")
     w.add_argument("--encoding", choices=ENCODINGS, default="float32", help="WAV sample format (default float32)")
     w.add_argument("--results-only", action="store_true", help="npz: readings only, no raw samples")
@@ -50,7 +50,7 @@ def run(args: argparse.Namespace) -> int:
         elif args.format == "csv":
             message = from_store.export_csv(store, sel, args.out)
         elif args.format == "wav":
-            message = from_store.export_wav(store, sel, args.out, args.encoding)
+            message = from_store.export_wav(store, sel, args.out, args.encoding, args.shot)
         else:
             message = from_store.export_npz(store, sel, args.out, not args.results_only)
     print(message)

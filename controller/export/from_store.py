@@ -153,11 +153,15 @@ def _full_scale_v(store: Store, run_id: str, cache: dict[str, float]) -> float:
     return cache[run_id]
 
 
-def export_wav(store: Store, sel: Selection, out: str | Path, encoding: str = "float32") -> str:
+def export_wav(store: Store, sel: Selection, out: str | Path, encoding: str = "float32",
+               shot_index: int | None = None) -> str:
+    """Raw shots back to back (or the one shot `shot_index`), one WAV channel per recorded channel."""
     writer, count, full_scale, first = None, 0, {}, None
     with atomic_output(out) as part:
         try:
             for s in shots(store, sel):
+                if shot_index is not None and s.shot_index != shot_index:
+                    continue
                 if writer is None:
                     first = s
                     names = ", ".join(s.channel_names)
@@ -173,10 +177,13 @@ def export_wav(store: Store, sel: Selection, out: str | Path, encoding: str = "f
             if writer is not None:
                 writer.close()
         if writer is None:
-            raise InputError(f"{store.path}: no raw samples in {sel.describe()} (compacted, or no shots)")
+            which = f"shot {shot_index} of " if shot_index is not None else ""
+            raise InputError(f"{store.path}: no raw samples for {which}{sel.describe()} (compacted, or no such shot)")
+    several = ("; shots lie back to back, and `precess analyze` fits a file as one record: export one with --shot N"
+               if count > 1 else "")
     clipped = f", {writer.clipped} sample(s) clipped at full scale" if writer.clipped else ""
     return (f"wrote {out}: WAV {encoding}, {count} shot(s), {writer.frames} frames x {writer.n_channels} "
-            f"channel(s) at {first.sample_rate_hz:g} Hz{clipped}")
+            f"channel(s) at {first.sample_rate_hz:g} Hz{clipped}{several}")
 
 
 def export_npz(store: Store, sel: Selection, out: str | Path, with_samples: bool = True) -> str:
