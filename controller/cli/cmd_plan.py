@@ -13,12 +13,13 @@ import argparse
 import datetime as dt
 import json
 import math
+from types import SimpleNamespace
 
 from controller.config.loader import load_rig, load_sample, load_site
 from controller.errors import InputError
 from controller.physics.coil import CoilModel
 from controller.physics.geomag import parse_date
-from controller.physics.thermal import ThermalModel
+from controller.physics.thermal import thermal_model_for
 from controller.physics.wire import awg_table, metric_table
 from controller.planning.coil import CoilDuty, coil_plan
 from controller.planning.report import Section, as_json_object, as_text, table_text
@@ -173,8 +174,12 @@ def run_coil(args: argparse.Namespace) -> int:
     if not 1000 <= field_nt <= 100000:
         raise InputError(f"--field-nt {field_nt:g} is not allowed; allowed: 1000 to 100000 nT")
     sample_length = _sample_length_m(args, coil, loaded)
-    thermal = ThermalModel(resistance_20c_ohm=coil.resistance_20c_ohm, heat_capacity_j_per_k=heat_capacity,
-                           thermal_resistance_k_per_w=r_th, ambient_c=ambient)
+    # the rig's own thermal model (two-node when its [coil] gives a former), with the overrides
+    thermal_inputs = SimpleNamespace(
+        heat_capacity_j_per_k=heat_capacity, thermal_resistance_k_per_w=r_th, ambient_c=ambient,
+        former_heat_capacity_j_per_k=cfg.coil.former_heat_capacity_j_per_k if cfg else 0.0,
+        winding_to_former_k_per_w=cfg.coil.winding_to_former_k_per_w if cfg else 1.0)
+    thermal = thermal_model_for(thermal_inputs, coil)
     duty = CoilDuty(current_a=current, polarise_s=polarise, hot_c=hot, clamp_voltage_v=clamp,
                     earth_field_nt=field_nt, sample_length_m=sample_length, thermal=thermal)
     return _print(coil_plan(coil, duty), args.json)

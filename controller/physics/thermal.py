@@ -19,7 +19,7 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass
-from typing import Protocol
+from typing import ClassVar, Protocol
 
 from controller.physics.wire import COPPER_ALPHA_PER_K, REFERENCE_TEMPERATURE_C
 from controller.physics.thermal_two_node import TwoNodeThermalModel
@@ -45,6 +45,8 @@ class CoilThermal(Protocol):
 
 @dataclass(frozen=True)
 class ThermalModel:
+    model_name: ClassVar[str] = "one-node"
+
     resistance_20c_ohm: float
     heat_capacity_j_per_k: float
     thermal_resistance_k_per_w: float

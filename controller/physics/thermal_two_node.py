@@ -19,10 +19,13 @@ the matrix exponential of the augmented matrix [[A, b], [0, 0]] (Van Loan, IEEE 
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass, field
+from typing import ClassVar
 
 import numpy as np
 from scipy.linalg import expm
+from scipy.optimize import brentq
 
 from controller.physics.wire import COPPER_ALPHA_PER_K, REFERENCE_TEMPERATURE_C
 
@@ -30,6 +33,8 @@ from controller.physics.wire import COPPER_ALPHA_PER_K, REFERENCE_TEMPERATURE_C
 @dataclass(frozen=True)
 class TwoNodeThermalModel:
     """Parameters of the two-node model; state = (winding C, former C)."""
+
+    model_name: ClassVar[str] = "two-node"
 
     resistance_20c_ohm: float
     winding_heat_capacity_j_per_k: float
@@ -133,3 +138,42 @@ class TwoNodeThermalModel:
         """Dissipation I^2 R(T) in the winding."""
         return current_a**2 * self.resistance_20c_ohm * (
             1.0 + self.alpha_per_k * (temperature_c - REFERENCE_TEMPERATURE_C))
+
+    def heating_rate_k_per_s(self, current_a: float, temperature_c: float) -> float:
+        """Initial rate of rise of the winding, before any heat leaves it: I^2 R(T) / C_w."""
+        return self.power_w(current_a, temperature_c) / self.winding_heat_capacity_j_per_k
+
+    def max_duty_cycle(self, current_a: float, limit_c: float) -> float:
+        """Largest on-fraction whose mean power keeps the steady winding temperature at limit_c.
+
+        In steady state no heat flows into the former, so T_w = T_amb + P_mean R_wa and
+        duty = (T_lim - T_amb) / (R_wa I^2 R(T_lim)), capped at 1 (pulses short against
+        both time constants) [calc from the model's equations].
+        """
+        power = self.power_w(current_a, limit_c)
+        if power <= 0.0:
+            return 1.0
+        return max(0.0, min(1.0, (limit_c - self.ambient_c) / (self.winding_to_ambient_k_per_w * power)))
+
+    def time_to_reach_s(self, current_a: float, start_c: float, target_c: float) -> float:
+        """Time for a constant current to heat the winding from a uniform start_c to target_c.
+
+        inf when the steady winding temperature stays at or below target_c.  From a uniform
+        start the winding's rise is monotonic (a passive RC network's step response), so
+        the crossing is bracketed by doubling and found with Brent's method on `step`.
+        """
+        if target_c <= start_c:
+            return 0.0
+        steady = self.steady_state_c(current_a)
+        if math.isfinite(steady) and steady <= target_c:
+            return math.inf
+        tau = self.winding_heat_capacity_j_per_k * self.winding_to_ambient_k_per_w
+        high = max(tau * 1e-3, 1e-6)
+        for _ in range(200):
+            if self.step(start_c, current_a, high) >= target_c:
+                break
+            high *= 2.0
+        else:
+            return math.inf
+        return float(brentq(lambda t: self.step(start_c, current_a, t) - target_c, 0.0, high,
+                            xtol=1e-9 * high, rtol=1e-12))

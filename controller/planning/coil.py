@@ -16,6 +16,7 @@ from controller.physics.coil import CoilModel
 from controller.physics.constants import gamma_hz_per_nt
 from controller.physics.magnetisation import adiabatic_rate_t_per_s, switch_off_regime
 from controller.physics.thermal import ThermalModel
+from controller.physics.thermal_two_node import TwoNodeThermalModel
 from controller.physics.wire import copper_resistance_ohm
 from controller.planning.report import Row, Section
 
@@ -32,7 +33,7 @@ class CoilDuty:
     clamp_voltage_v: float
     earth_field_nt: float
     sample_length_m: float
-    thermal: ThermalModel
+    thermal: ThermalModel | TwoNodeThermalModel  # the rig's own model (rigmodel / thermal_model_for)
 
 
 def wire_name(coil: CoilModel) -> str:
@@ -104,15 +105,33 @@ def _inductance(coil: CoilModel, duty: CoilDuty) -> Section:
               "low for a thin build",))
 
 
-def _heating(coil: CoilModel, duty: CoilDuty) -> Section:
-    th, i = duty.thermal, duty.current_a
-    after = th.step(th.ambient_c, i, duty.polarise_s)
-    return Section("heating", f"Heating at {i:g} A (first-order thermal model)", (
-        Row("power_ambient_w", "power at ambient", th.power_w(i, th.ambient_c), "W", digits=".2f"),
-        Row("power_hot_w", "power when hot", th.power_w(i, duty.hot_c), "W", digits=".2f"),
+def _thermal_parameters(th: ThermalModel | TwoNodeThermalModel) -> tuple[Row, ...]:
+    if isinstance(th, TwoNodeThermalModel):
+        return (
+            Row("heat_capacity_j_per_k", "winding heat capacity", th.winding_heat_capacity_j_per_k, "J/K",
+                digits=".1f"),
+            Row("thermal_resistance_k_per_w", "thermal resistance winding to ambient",
+                th.winding_to_ambient_k_per_w, "K/W", digits=".2f"),
+            Row("former_heat_capacity_j_per_k", "former heat capacity", th.former_heat_capacity_j_per_k, "J/K",
+                digits=".1f"),
+            Row("winding_to_former_k_per_w", "thermal resistance winding to former",
+                th.winding_to_former_k_per_w, "K/W", digits=".2f"),
+        )
+    return (
         Row("heat_capacity_j_per_k", "heat capacity", th.heat_capacity_j_per_k, "J/K", digits=".1f"),
         Row("thermal_resistance_k_per_w", "thermal resistance to ambient", th.thermal_resistance_k_per_w, "K/W",
             digits=".2f"),
+    )
+
+
+def _heating(coil: CoilModel, duty: CoilDuty) -> Section:
+    th, i = duty.thermal, duty.current_a
+    after = th.step(th.ambient_c, i, duty.polarise_s)
+    return Section("heating", f"Heating at {i:g} A ({th.model_name} thermal model)", (
+        Row("thermal_model", "thermal model", th.model_name),
+        Row("power_ambient_w", "power at ambient", th.power_w(i, th.ambient_c), "W", digits=".2f"),
+        Row("power_hot_w", "power when hot", th.power_w(i, duty.hot_c), "W", digits=".2f"),
+        *_thermal_parameters(th),
         Row("heating_rate_k_per_s", "initial heating rate", th.heating_rate_k_per_s(i, th.ambient_c), "K/s",
             digits=".3f"),
         Row("polarise_s", "one polarising pulse", duty.polarise_s, "s", digits=".2f"),
