@@ -29,6 +29,15 @@ class SegmentWaveforms:
         return int(self.gate.size)
 
 
+def ramp_fraction(shape: str, k: np.ndarray | float) -> np.ndarray:
+    """The commanded fraction of the polarising current at k = t / ramp time (0 <= k < 1).
+
+    Linear g = 1 - k; exponential g = exp(-5 k), cut to 0 at k = 1 (five time constants).
+    """
+    k = np.asarray(k, dtype=float)
+    return 1.0 - k if shape == "linear" else np.exp(-5.0 * k)
+
+
 def render_segment(shot: ShotPlan, sample_rate_hz: float) -> SegmentWaveforms:
     n = shot.segment_samples
     gate = np.zeros(n)
@@ -38,7 +47,7 @@ def render_segment(shot: ShotPlan, sample_rate_hz: float) -> SegmentWaveforms:
         ramp_n = max(1, int(round(off.ramp_s * sample_rate_hz)))
         k = np.arange(ramp_n) / ramp_n
         stop = min(n, off.start_sample + ramp_n)
-        shape = 1.0 - k if off.shape == "linear" else np.exp(-5.0 * k)
+        shape = ramp_fraction(off.shape, k)
         gate[off.start_sample:stop] = shape[: stop - off.start_sample]
     for p in shot.of_kind(Pulse):
         idx = np.arange(p.start_sample, min(n, p.start_sample + p.n_samples))

@@ -19,6 +19,7 @@ import tty
 from dataclasses import dataclass, field
 from pathlib import Path
 
+from controller.sequences.render import ramp_fraction
 from drivers import board_protocol as bp
 
 TICK_S = 0.001
@@ -129,6 +130,26 @@ class BoardEmulator:
     def path(self) -> str:
         with self._lock:
             return self.state.path
+
+    def coil_current_a(self, at_s: float | None = None) -> float:
+        """The modelled coil current at time.monotonic() at_s (now if None).
+
+        load_current_a while polarising; after a segment's switch-off it falls along the
+        commanded ramp, load_current_a * g(t / ramp), g from controller.sequences.render
+        (linear or exponential), and is 0 once ramp_us have passed (at once if ramp_us is 0).
+        An aborted segment or any other path leaves the coil off.
+        """
+        with self._lock:
+            s = self.state
+            if s.path == "polarise":
+                return self.load_current_a
+            if s.segment is None or s.off_at_s is None or s.segment_state not in ("running", "done"):
+                return 0.0
+            ramp_s = s.segment.ramp_us * 1e-6
+            since_s = (time.monotonic() if at_s is None else at_s) - s.off_at_s
+            if ramp_s <= 0.0 or not 0.0 <= since_s < ramp_s:
+                return 0.0
+            return self.load_current_a * float(ramp_fraction(s.segment.shape, since_s / ramp_s))
 
     def history(self) -> list[tuple[float, str, str]]:
         with self._lock:
@@ -287,7 +308,7 @@ class BoardEmulator:
         self._reply(seq, "OK", args[0])
 
     def _cmd_sens(self, seq: int, args: tuple[str, ...]) -> None:
-        current = self.load_current_a if self.state.path == "polarise" else 0.0
+        current = self.coil_current_a()
         self._reply(seq, "OK", f"temp_c={self.state.temperature_c:.2f}", f"current_a={current:.3f}",
                     f"battery_v={self.battery_v - 0.05 * current:.2f}")
 
