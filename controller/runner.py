@@ -82,6 +82,14 @@ def prepare_spec(spec: Any, sequence_path: str, loaded: LoadedRig, *, store: Sto
                        larmor_hz=larmor_hz, larmor_source=larmor_source)
 
 
+def run_snapshot(base: dict[str, Any], prepared: PreparedRun) -> dict[str, Any]:
+    """A run's config snapshot with the Larmor frequency it used and its source.
+
+    `precess analyze --db --run` reads both to compile the same timeline again.
+    """
+    return {**base, "larmor_hz": prepared.larmor_hz, "larmor_source": prepared.larmor_source}
+
+
 def _compile(spec: Any, sequence_path: str, loaded: LoadedRig, larmor_hz: float | None, source: str,
              cal_path: Path | None) -> Timeline:
     calibration = load_calibration(cal_path) if cal_path is not None and cal_path.exists() else None

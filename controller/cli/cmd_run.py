@@ -18,7 +18,7 @@ from controller.cli.supervision import add_state_dir_argument, latch_for, superv
 from controller.cooling import insert_cooling_pauses, plan_cooling_pauses
 from controller.errors import InputError
 from controller.records import EXIT_COMPLETED
-from controller.runner import finish_run, prepare_run
+from controller.runner import finish_run, prepare_run, run_snapshot
 from controller.sequences.timeline import Polarise
 from controller.store import Store
 
@@ -66,9 +66,8 @@ def run(args: argparse.Namespace) -> int:
         engine = supervised_engine(loaded, rig, clock, store, latch)
         engine.best_effort_sinks.append(Progress(out, prepared.timeline, prepared.spec,
                                                  full_scale_v=loaded.config.receive.adc_full_scale_v))
-        snapshot = {**config_snapshot(loaded, prepared.spec, args.sequence),  # larmor: to recompile it later
-                    "larmor_hz": prepared.larmor_hz, "larmor_source": prepared.larmor_source}
-        outcome = engine.run(prepared.timeline, snapshot)
+        outcome = engine.run(prepared.timeline, run_snapshot(config_snapshot(loaded, prepared.spec, args.sequence),
+                                                             prepared))
         rig.close()
         summary: dict[str, Any] = {"run_id": outcome.run_id, "exit_status": outcome.exit_status,
                                    "reason": outcome.reason, "db": str(Path(args.db))}

@@ -29,7 +29,7 @@ from controller.records import EXIT_COMPLETED, InterlockTripped, Record, RunFini
 from controller.rig import Rig
 from controller.sequences.timeline import Timeline
 from controller.store import Store
-from controller.runner import PreparedRun, finish_run, prepare_spec
+from controller.runner import PreparedRun, finish_run, prepare_spec, run_snapshot
 from controller.tui.adapter import LiveStack
 from controller.tui.latch import STATE_TRIPPED, RecordLatch, TripLatch
 
@@ -266,7 +266,7 @@ class Session:
         self.engine = engine
         run_id = self.new_run_id()
         try:
-            outcome = engine.run(prepared.timeline, item.config_snapshot, run_id=run_id)
+            outcome = engine.run(prepared.timeline, run_snapshot(item.config_snapshot, prepared), run_id=run_id)
         except PrecessError as exc:  # the supervisor refused before anything was energised
             self.notify(Notice(f"refused {item.label}: {exc}", alarm=True))
             self.notify(LatchChanged(self.latch.state, self.latch.trip_reason))
