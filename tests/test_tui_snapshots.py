@@ -92,3 +92,9 @@ def test_help_screen_80x24(snap_compare, tmp_path):
         await wait_for(pilot, lambda: isinstance(app.screen, HelpScreen), 5, "help")
 
     assert snap_compare(app, terminal_size=(80, 24), run_before=run_before)
+
+
+def test_history_during_a_fid_run_without_colour_80x24(snap_compare, tmp_path, monkeypatch):
+    monkeypatch.setenv("NO_COLOR", "1")  # the field after each shot must read without colour at 80x24
+    app = make_app(tmp_path / "s.sqlite")
+    assert snap_compare(app, terminal_size=(80, 24), run_before=after_runs(app, shots=4, keys=("h",)))

@@ -45,6 +45,17 @@ class HistoryPoint:
     t2star_sd_s: float
 
 
+@dataclass(frozen=True)
+class ShotFieldPoint:
+    """The running FID fit's field after one shot of the latest run, at that shot's start (rig clock)."""
+
+    run_id: str
+    shot_index: int
+    at_s: float
+    field_nt: float
+    field_sd_nt: float
+
+
 @dataclass
 class LiveState:
     rig_name: str
@@ -57,6 +68,7 @@ class LiveState:
     fit: FitSummary | None = None
     fit_note: str = ""
     history: list[HistoryPoint] = field(default_factory=list)
+    shot_fields: list[ShotFieldPoint] = field(default_factory=list)  # the latest FID run's, one per shot
     latch_state: str = STATE_CLEAR
     trip_reason: str = ""
     queue: tuple[str, ...] = ()
@@ -144,6 +156,9 @@ class LiveState:
                 self.history[-1] = point
             else:
                 self.history.append(point)
+            if self.shot_fields and self.shot_fields[-1].run_id != v.run_id:
+                self.shot_fields = []
+            self.shot_fields.append(ShotFieldPoint(v.run_id, v.shot_index, v.at_s, v.fit.field_nt, v.fit.field_sd_nt))
             changed.add("history")
         return changed
 

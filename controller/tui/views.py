@@ -7,7 +7,7 @@ from rich.style import Style
 
 from controller.tui.adapter import Spectrum, Trace
 from controller.tui.plot import Marker, PlotSpec, Series
-from controller.tui.state import HistoryPoint
+from controller.tui.state import HistoryPoint, ShotFieldPoint
 
 SIGNAL_STYLE = Style(color="cyan")
 ENVELOPE_STYLE = Style(color="yellow", bold=True)
@@ -49,16 +49,36 @@ def history_specs(points: list[HistoryPoint]) -> tuple[PlotSpec, PlotSpec]:
     """Field (nT) and T2* (s) of each run against minutes since the first, with ±1 sd bars."""
     t0 = points[0].at_s
     minutes = np.array([(p.at_s - t0) / 60.0 for p in points])
-    x_range = (0.0, max(0.1, float(minutes.max()) * 1.1))
+    return (points_spec(minutes, [p.field_nt for p in points], [p.field_sd_nt for p in points], "min", "nT"),
+            points_spec(minutes, [p.t2star_s for p in points], [p.t2star_sd_s for p in points], "min", "s"))
 
-    def spec(values: list[float], sds: list[float], unit: str) -> PlotSpec:
-        v, sd = np.array(values), np.array(sds)
-        sd = np.where(np.isfinite(sd), sd, 0.0)
-        bars = Series(np.repeat(minutes, 2), np.column_stack([v - sd, v + sd]).ravel(), ERROR_BAR_STYLE, connect=False)
-        lo, hi = float((v - sd).min()), float((v + sd).max())
-        pad = max(hi - lo, abs(hi) * 1e-6, 1e-9) * 0.1
-        return PlotSpec(series=(bars, Series(minutes, v, ENVELOPE_STYLE, connect=False)), x_unit="min", y_unit=unit,
-                        x_range=x_range, y_range=(lo - pad, hi + pad), y_scale_unit=False)
 
-    return (spec([p.field_nt for p in points], [p.field_sd_nt for p in points], "nT"),
-            spec([p.t2star_s for p in points], [p.t2star_sd_s for p in points], "s"))
+def history_sections(history: list[HistoryPoint], shot_fields: list[ShotFieldPoint]) -> list[tuple[str, PlotSpec]]:
+    """(caption, plot) of the history pane, most urgent first: the latest FID run's field after
+    each shot (once it has two), then the field and T2* of each run."""
+    sections = []
+    if len(shot_fields) >= 2:
+        sections.append((f"field per shot · {shot_fields[-1].run_id} ±1 sd",
+                         shot_field_spec(shot_fields)))
+    if history:
+        field_plot, t2star_plot = history_specs(history)
+        sections += [("field per run ±1 sd", field_plot), ("T2* per run ±1 sd", t2star_plot)]
+    return sections
+
+
+def shot_field_spec(points: list[ShotFieldPoint]) -> PlotSpec:
+    """The running fit's field (nT, ±1 sd) after each shot against seconds since the run's first shot."""
+    t0 = points[0].at_s
+    seconds = np.array([p.at_s - t0 for p in points])
+    return points_spec(seconds, [p.field_nt for p in points], [p.field_sd_nt for p in points], "s", "nT")
+
+
+def points_spec(x: np.ndarray, values: list[float], sds: list[float], x_unit: str, y_unit: str) -> PlotSpec:
+    """Unconnected points with ±1 sd bars (dim); x from 0 to 1.1 x its largest value."""
+    v, sd = np.array(values), np.array(sds)
+    sd = np.where(np.isfinite(sd), sd, 0.0)
+    bars = Series(np.repeat(x, 2), np.column_stack([v - sd, v + sd]).ravel(), ERROR_BAR_STYLE, connect=False)
+    lo, hi = float((v - sd).min()), float((v + sd).max())
+    pad = max(hi - lo, abs(hi) * 1e-6, 1e-9) * 0.1
+    return PlotSpec(series=(bars, Series(x, v, ENVELOPE_STYLE, connect=False)), x_unit=x_unit, y_unit=y_unit,
+                    x_range=(0.0, max(0.1, float(x.max()) * 1.1)), y_range=(lo - pad, hi + pad), y_scale_unit=False)

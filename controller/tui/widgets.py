@@ -15,7 +15,7 @@ from textual.widget import Widget
 
 from controller.tui import panels
 from controller.tui.plot import render_plot
-from controller.tui.views import history_specs, spectrum_spec, trace_spec
+from controller.tui.views import history_sections, spectrum_spec, trace_spec
 
 if TYPE_CHECKING:
     from controller.tui.state import LiveState
@@ -23,6 +23,7 @@ if TYPE_CHECKING:
 PANE_TRACE = "trace"
 PANE_SPECTRUM = "spectrum"
 PANE_HISTORY = "history"
+MIN_SECTION_ROWS = 6  # a caption and a plot of at least 5 rows; fewer and the last sections are left out
 
 
 class LiveWidget(Widget):
@@ -120,7 +121,8 @@ class PlotPane(LiveWidget):
     def title(self) -> str:
         views = self.state.views
         if self.kind == PANE_HISTORY:
-            return f"history · field and T2* per run ({len(self.state.history)})"
+            sections = history_sections(self.state.history, self.state.shot_fields)
+            return f"history · {sections[0][0]}" if sections else "history"
         if views is None:
             return "last shot" if self.kind == PANE_TRACE else "spectrum"
         what = (f"shot {views.shot_index + 1}" if self.source == "shot"
@@ -133,12 +135,10 @@ class PlotPane(LiveWidget):
         width, height = self.content_size.width, self.content_size.height
         state = self.state
         if self.kind == PANE_HISTORY:
-            if not state.history:
+            sections = history_sections(state.history, state.shot_fields)
+            if not sections:
                 return Text("no runs yet: each run adds its field and T2* here", Style(dim=True))
-            top, bottom = history_specs(state.history)
-            upper = height // 2
-            lines = render_plot(top, width, upper) + render_plot(bottom, width, height - upper)
-            return Text("\n").join(lines)
+            return Text("\n").join(render_sections(sections, width, height))
         views = state.views
         if views is None:
             return Text("waiting for the first shot · p: plan a run · g: go", Style(dim=True))
@@ -150,3 +150,17 @@ class PlotPane(LiveWidget):
                 else views.stack_spectrum
             spec = spectrum_spec(spectrum)
         return Text("\n").join(render_plot(spec, width, height))
+
+
+def render_sections(sections: list, width: int, height: int) -> list[Text]:
+    """Plots stacked in `height` rows, each but the first (whose caption is the pane's title) under
+    its caption; the last are left out when each would be too small."""
+    while len(sections) > 1 and height // len(sections) < MIN_SECTION_ROWS:
+        sections = sections[:-1]
+    rows = height // len(sections)
+    lines: list[Text] = []
+    for i, (caption, spec) in enumerate(sections):
+        own = rows if i < len(sections) - 1 else height - rows * i
+        caption_lines = [Text(caption[:width], Style(bold=True))] if i else []
+        lines += caption_lines + render_plot(spec, width, own - len(caption_lines))
+    return lines
