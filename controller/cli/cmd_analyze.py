@@ -9,7 +9,7 @@ from typing import Any
 from controller.analysis.pipeline import DEFAULT_BAND_HZ, AnalysisOptions, ShotData, analyse_shots, gamma_value
 from controller.analysis.sources import default_channels, shot_from_wav, shots_from_store
 from controller.cli.cmd_runs import DEFAULT_DB
-from controller.cli.common import to_json
+from controller.cli.common import to_json, whole_number_at_least
 from controller.errors import InputError
 from controller.store import Store
 
@@ -28,14 +28,7 @@ def band(text: str) -> tuple[float, float]:
     return low, high
 
 
-def channel_number(text: str) -> int:
-    try:
-        value = int(text)
-    except ValueError:
-        raise argparse.ArgumentTypeError(f"channel {text!r} must be a whole number (channels count from 0)") from None
-    if value < 0:
-        raise argparse.ArgumentTypeError(f"channel {value} must be 0 or more (channels count from 0)")
-    return value
+channel_number = whole_number_at_least(0, "channel", " (channels count from 0)")
 
 
 def gamma_choice(text: str) -> str | float:

@@ -9,7 +9,7 @@ import json
 import math
 import sys
 from pathlib import Path
-from typing import Any, Iterator
+from typing import Any, Callable, Iterator
 
 from controller.clock import Clock, VirtualClock, WallClock
 from controller.config.loader import LoadedRig, load_rig
@@ -41,15 +41,23 @@ def real_rig_caution(cfg: RigConfig, max_current_a: float) -> str:
     ])
 
 
-def positive_int(text: str) -> int:
-    """argparse type: a whole number >= 1."""
-    try:
-        value = int(text)
-    except ValueError:
-        raise argparse.ArgumentTypeError(f"{text!r} is not a whole number") from None
-    if value < 1:
-        raise argparse.ArgumentTypeError(f"{value} is not allowed; must be at least 1")
-    return value
+def whole_number_at_least(minimum: int, what: str = "value", note: str = "") -> Callable[[str], int]:
+    """An argparse type: a whole number >= minimum; `note` follows the error (e.g. how things count)."""
+
+    def parse(text: str) -> int:
+        try:
+            value = int(text)
+        except ValueError:
+            raise argparse.ArgumentTypeError(f"{what} {text!r} is not a whole number{note}") from None
+        if value < minimum:
+            raise argparse.ArgumentTypeError(f"{what} {value} is not allowed; must be at least {minimum}{note}")
+        return value
+
+    parse.__name__ = f"whole number >= {minimum}"
+    return parse
+
+
+positive_int = whole_number_at_least(1)
 
 
 def make_clock(loaded: LoadedRig, realtime: bool = False) -> Clock:
